@@ -1,0 +1,87 @@
+"""The ``stackdepth`` command line: drives kernels and io, with no GUI.
+
+Exit statuses: 0 success; 1 unexpected internal failure; 2 bad input or
+usage (one line on stderr starting ``stackdepth: error:``); 3 a check
+found the data outside the tolerance (``stackdepth bleaching``).
+"""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+import logging
+import sys
+from typing import Sequence
+
+from . import __version__
+from .commands._common import EXIT_FAILURE, EXIT_USAGE, CommandError
+
+#: Sub-command modules in :mod:`viewer_plugin.commands`, in help order.
+SUBCOMMANDS = ("view", "demo", "project", "attenuation", "bleaching")
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse that reports usage errors in the project's one-line form."""
+
+    def error(self, message: str) -> "NoReturn":  # type: ignore[name-defined]  # noqa: F821
+        raise CommandError(message)
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = _Parser(
+        prog="stackdepth",
+        description=(
+            "Depth analysis of fluorescence microscopy z-stacks: depth-coded projections, "
+            "depth attenuation and photobleaching checks. A research tool, not for clinical "
+            "or diagnostic decisions."
+        ),
+        epilog="Exit status: 0 ok, 2 bad input, 3 outside tolerance (bleaching), 1 internal error.",
+    )
+    parser.add_argument("--version", action="version", version=f"stackdepth {__version__}")
+    parser.add_argument("-v", "--verbose", action="store_true", help="log details to stderr")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    for name in SUBCOMMANDS:
+        try:
+            module = importlib.import_module(f".commands.{name}", __package__)
+        except ModuleNotFoundError as exc:
+            if exc.name != f"{__package__}.commands.{name}":
+                raise
+            continue
+        module.register(sub)
+    return parser
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Entry point of the ``stackdepth`` console script; returns the exit status."""
+    parser = build_parser()
+    try:
+        args = parser.parse_args(argv)
+        logging.basicConfig(
+            level=logging.INFO if args.verbose else logging.WARNING,
+            format="stackdepth: %(levelname)s: %(message)s",
+        )
+        if not getattr(args, "func", None):
+            parser.print_help(sys.stderr)
+            return EXIT_USAGE
+        return int(args.func(args) or 0)
+    except CommandError as exc:
+        return _error(str(exc), EXIT_USAGE)
+    except (ValueError, OSError) as exc:
+        return _error(str(exc) or type(exc).__name__, EXIT_USAGE)
+    except KeyboardInterrupt:
+        return _error("interrupted", 130)
+    except Exception as exc:  # noqa: BLE001 - never show a traceback to a user
+        if "--verbose" in (argv or sys.argv) or "-v" in (argv or sys.argv):
+            logging.exception("internal error")
+        return _error(f"internal error ({type(exc).__name__}: {exc}); rerun with -v for details",
+                      EXIT_FAILURE)
+
+
+def _error(message: str, status: int) -> int:
+    first_line = " ".join(message.split())
+    print(f"stackdepth: error: {first_line}", file=sys.stderr)
+    return status
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

@@ -1,0 +1,121 @@
+"""Helpers shared by the sub-commands: errors, progress, atomic outputs."""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+import sys
+import tempfile
+import time
+from pathlib import Path
+from typing import Any, Callable
+
+import numpy as np
+
+#: Exit statuses (documented in ``stackdepth --help``).
+EXIT_OK = 0
+EXIT_FAILURE = 1
+EXIT_USAGE = 2
+EXIT_OVER_TOLERANCE = 3
+
+
+class CommandError(Exception):
+    """A user-facing failure: printed as one line, exit status 2."""
+
+
+def check_output_path(path: str | os.PathLike[str], *, overwrite: bool, name: str = "--output") -> Path:
+    """Refuse to replace an existing file unless *overwrite*; the folder must exist."""
+    out = Path(path)
+    if out.exists() and not overwrite:
+        raise CommandError(f"{name}: {out} exists; pass --overwrite to replace it")
+    if not out.parent.exists():
+        raise CommandError(f"{name}: folder {out.parent} does not exist")
+    return out
+
+
+def atomic_write_bytes(path: Path, write: Callable[[Path], None]) -> Path:
+    """Call *write(tmp)* on a temporary file beside *path*, then rename it into place."""
+    path = Path(path)
+    suffix = "".join(path.suffixes) or ".tmp"
+    fd, tmp_name = tempfile.mkstemp(prefix=f".{path.name}.", suffix=suffix, dir=path.parent)
+    os.close(fd)
+    tmp = Path(tmp_name)
+    try:
+        write(tmp)
+        os.replace(tmp, path)
+    finally:
+        if tmp.exists():
+            tmp.unlink()
+    return path
+
+
+def _json_default(value: Any) -> Any:
+    if isinstance(value, np.ndarray):
+        return value.tolist()
+    if isinstance(value, (np.floating, np.integer, np.bool_)):
+        return value.item()
+    if isinstance(value, Path):
+        return str(value)
+    raise TypeError(f"cannot store {type(value).__name__} in a JSON report")
+
+
+def _finite(value: Any) -> Any:
+    """JSON has no inf/NaN: store them as null (documented in the reports)."""
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    if isinstance(value, dict):
+        return {k: _finite(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_finite(v) for v in value]
+    if isinstance(value, np.ndarray):
+        return _finite(value.tolist())
+    if isinstance(value, (np.floating,)):
+        return _finite(float(value))
+    return value
+
+
+def write_json(path: Path, payload: dict[str, Any]) -> Path:
+    """Write *payload* as indented JSON atomically (inf/NaN become null)."""
+    text = json.dumps(_finite(payload), indent=2, default=_json_default, allow_nan=False)
+    return atomic_write_bytes(Path(path), lambda tmp: tmp.write_text(text + "\n", encoding="utf-8"))
+
+
+class TerminalProgress:
+    """A one-line progress bar on stderr, shown only when stderr is a terminal.
+
+    Call it as ``progress(done, total)``; it matches the kernels' callback.
+    """
+
+    def __init__(self, label: str, *, stream: Any = None, enabled: bool | None = None) -> None:
+        self.label = label
+        self.stream = stream if stream is not None else sys.stderr
+        self.enabled = self.stream.isatty() if enabled is None else enabled
+        self._last = 0.0
+        self._shown = False
+
+    def __call__(self, done: int, total: int) -> None:
+        if not self.enabled:
+            return
+        now = time.monotonic()
+        if done < total and now - self._last < 0.1:
+            return
+        self._last = now
+        fraction = 1.0 if total <= 0 else min(1.0, done / total)
+        width = 30
+        filled = int(round(width * fraction))
+        self.stream.write(f"\r{self.label} [{'#' * filled}{'.' * (width - filled)}] {fraction:4.0%}")
+        self.stream.flush()
+        self._shown = True
+
+    def close(self) -> None:
+        if self.enabled and self._shown:
+            self.stream.write("\n")
+            self.stream.flush()
+            self._shown = False
+
+    def __enter__(self) -> "TerminalProgress":
+        return self
+
+    def __exit__(self, *exc: Any) -> None:
+        self.close()

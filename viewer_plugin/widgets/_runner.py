@@ -1,0 +1,124 @@
+"""Run a kernel off the GUI thread with progress, cancellation and notifications.
+
+Usage inside a widget::
+
+    self._task = BackgroundTask(label="Depth colour projection")
+    self._task.start(lambda progress: kernel(data, progress=progress),
+                     on_result=self._add_layer)
+
+The kernel receives a ``progress(done, total)`` callback. Progress is
+forwarded to a napari progress bar created on the GUI thread; when the user
+cancels, the callback raises :class:`~viewer_plugin.kernels.Cancelled` at
+the kernel's next chunk boundary. Input errors become napari notifications.
+"""
+
+from __future__ import annotations
+
+import logging
+from typing import Any, Callable
+
+from napari.qt.threading import create_worker
+from napari.utils import progress as napari_progress
+from napari.utils.notifications import show_error, show_info, show_warning
+from qtpy.QtCore import QObject, Signal
+
+from ..kernels._validate import Cancelled
+
+logger = logging.getLogger(__name__)
+
+ProgressCallback = Callable[[int, int], None]
+
+
+class _Relay(QObject):
+    """Carries progress from the worker thread to the GUI thread."""
+
+    advanced = Signal(int, int)
+
+
+class BackgroundTask:
+    """One long computation at a time for a widget.
+
+    Parameters
+    ----------
+    label : str
+        Shown beside the napari progress bar.
+    """
+
+    def __init__(self, label: str) -> None:
+        self.label = label
+        self.worker: Any = None
+        self._bar: Any = None
+        self._relay = _Relay()
+        self._relay.advanced.connect(self._on_progress)
+        self._cancel_requested = False
+        self.started: list[Callable[[], None]] = []
+        self.finished: list[Callable[[], None]] = []
+
+    @property
+    def running(self) -> bool:
+        return self.worker is not None
+
+    def start(
+        self,
+        job: Callable[[ProgressCallback], Any],
+        *,
+        on_result: Callable[[Any], None],
+        start_thread: bool = True,
+    ) -> Any:
+        """Start *job(progress)* in a worker thread; call *on_result* on the GUI thread.
+
+        Returns the napari worker (not started when ``start_thread=False``,
+        which tests use to wait on its signals).
+        """
+        if self.worker is not None:
+            show_warning(f"{self.label}: a computation is already running; cancel it first")
+            return None
+        self._cancel_requested = False
+        self._bar = napari_progress(total=0, desc=self.label)
+
+        def emit(done: int, total: int) -> None:
+            if self._cancel_requested:
+                raise Cancelled
+            self._relay.advanced.emit(int(done), int(total))
+
+        worker = create_worker(job, emit, _start_thread=False)
+        worker.returned.connect(on_result)
+        worker.errored.connect(self._on_error)
+        worker.finished.connect(self._on_finished)
+        self.worker = worker
+        for callback in self.started:
+            callback()
+        if start_thread:
+            worker.start()
+        return worker
+
+    def cancel(self) -> None:
+        """Ask the running computation to stop at its next chunk."""
+        if self.worker is not None:
+            self._cancel_requested = True
+            self.worker.quit()
+
+    def _on_progress(self, done: int, total: int) -> None:
+        if self._bar is None:
+            return
+        if self._bar.total != total:
+            self._bar.total = total
+        self._bar.n = done
+        self._bar.refresh()
+
+    def _on_error(self, exc: BaseException) -> None:
+        if isinstance(exc, Cancelled):
+            show_info(f"{self.label}: cancelled")
+        elif isinstance(exc, (ValueError, OSError, MemoryError)):
+            show_error(f"{self.label}: {exc}")
+        else:
+            logger.error("%s failed", self.label, exc_info=exc)
+            show_error(f"{self.label}: unexpected {type(exc).__name__}: {exc}")
+
+    def _on_finished(self) -> None:
+        if self._bar is not None:
+            self._bar.close()
+            self._bar = None
+        self.worker = None
+        for callback in self.finished:
+            callback()
