@@ -1,0 +1,78 @@
+"""``stackdepth view [PATH] [--demo]``: open napari with the five stackdepth widgets docked."""
+
+from __future__ import annotations
+
+import argparse
+from pathlib import Path
+from typing import Any
+
+from ._common import CommandError
+
+#: Display names of the widgets, as in napari.yaml, in dock order.
+WIDGETS = (
+    "Depth colour projection",
+    "Brightest-point projection",
+    "Blended projection",
+    "Depth attenuation",
+    "Bleaching check",
+)
+
+
+def register(sub: Any) -> None:
+    parser = sub.add_parser("view", help="open napari with the stackdepth widgets",
+                            description="Open napari with the five stackdepth widgets docked and "
+                            "a file (OME-TIFF or TIFF) or the synthetic demo loaded.")
+    parser.add_argument("path", nargs="?", help="OME-TIFF or TIFF stack to open")
+    parser.add_argument("--demo", action="store_true", help="load the synthetic fibre-slab demo")
+    parser.add_argument("--screenshot", metavar="PNG",
+                        help="save a screenshot of the window once it is shown, then quit")
+    parser.set_defaults(func=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    from ..io.reader import stack_to_layers
+    from ..io.ometiff import read_stack
+
+    layers = []
+    if args.path:
+        layers.extend(stack_to_layers(read_stack(args.path)))  # fails fast: exit 2 before the GUI
+    if args.demo:
+        from ..samples import sample_fibre_slab
+
+        layers.extend(sample_fibre_slab())
+    if args.screenshot and not Path(args.screenshot).resolve().parent.is_dir():
+        raise CommandError(f"--screenshot: folder {Path(args.screenshot).parent} does not exist")
+    import napari
+
+    viewer = napari.Viewer(title="stackdepth")
+    open_in_viewer(viewer, layers)
+    if args.screenshot:
+        from qtpy.QtCore import QTimer
+
+        def shoot() -> None:
+            viewer.screenshot(args.screenshot, canvas_only=False)
+            viewer.close()
+
+        QTimer.singleShot(2500, shoot)
+    napari.run()
+    return 0
+
+
+def open_in_viewer(viewer: Any, layers: list[tuple[Any, dict[str, Any], str]]) -> list[Any]:
+    """Add *layers* to *viewer* and dock the five widgets, tabbed together.
+
+    Returns the docked widgets in the order of :data:`WIDGETS`.
+    """
+    for data, kwargs, kind in layers:
+        getattr(viewer, f"add_{kind}")(data, **kwargs)
+    widgets, docks = [], []
+    for name in WIDGETS:
+        dock, widget = viewer.window.add_plugin_dock_widget("stackdepth", name)
+        docks.append(dock)
+        widgets.append(widget)
+    main_window = docks[0].parentWidget()
+    if main_window is not None and hasattr(main_window, "tabifyDockWidget"):
+        for dock in docks[1:]:
+            main_window.tabifyDockWidget(docks[0], dock)
+        docks[0].raise_()
+    return widgets
