@@ -1,0 +1,171 @@
+"""Measurement helpers of the bleaching kernels: background, fixed foreground, profiles.
+
+The per-frame signal is the mean of the background-subtracted voxels inside one
+*fixed* foreground mask, so that a structure which changes between frames does
+not read as a change of brightness. Reductions run chunk by chunk along the
+acquisition axis (numpy and dask share the code).
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+
+from ._chunks import depth_chunks, plane_nbytes
+from ._validate import fail, is_dask, report_progress
+from .profiles import Background, background_level
+
+__all__ = [
+    "sample_background",
+    "otsu_mask",
+    "reference_mask",
+    "masked_profile",
+    "frame_mean",
+]
+
+#: Frames sampled along the acquisition axis for the background estimate.
+_BACKGROUND_FRAMES = 16
+#: Voxels kept (at most) for the Otsu threshold of a reference image.
+_OTSU_SAMPLE = 2_000_000
+
+
+def _as_numpy(block: Any) -> np.ndarray:
+    if is_dask(block):
+        block = block.compute()
+    return np.asarray(block)
+
+
+def sample_background(moved: Any) -> Background:
+    """Background of up to 16 evenly spaced frames of a depth-first array."""
+    n = int(moved.shape[0])
+    picks = np.unique(np.linspace(0, n - 1, min(n, _BACKGROUND_FRAMES)).round().astype(int))
+    sample = _as_numpy(moved[picks])
+    return background_level(sample if sample.ndim >= 2 else sample[None])
+
+
+def _strided_sample(image: np.ndarray) -> np.ndarray:
+    """At most about ``_OTSU_SAMPLE`` finite voxels of *image*, evenly strided."""
+    flat = image.ravel()
+    step = max(1, flat.size // _OTSU_SAMPLE)
+    sample = flat[::step]
+    return sample[np.isfinite(sample)]
+
+
+def otsu_mask(image: np.ndarray, *, smooth: float = 1.0) -> np.ndarray:
+    """Voxels of *image* above the Otsu threshold of its smoothed copy.
+
+    The threshold and the mask come from a Gaussian-smoothed copy (sigma
+    *smooth* voxels on every axis), so that the noise of the reference does
+    not pick voxels that merely happened to be bright in it (a selection that
+    would make later frames look dimmer: regression to the mean). Otsu: N. Otsu
+    1979, via ``skimage.filters.threshold_otsu``. All-False for a constant image.
+    """
+    from scipy import ndimage
+    from skimage.filters import threshold_otsu
+
+    image = np.asarray(image, dtype=np.float32)
+    if smooth > 0:
+        image = ndimage.gaussian_filter(image, smooth, mode="nearest")
+    sample = _strided_sample(image)
+    if sample.size == 0 or float(sample.min()) == float(sample.max()):
+        return np.zeros(image.shape, dtype=bool)
+    threshold = float(threshold_otsu(sample))
+    return np.asarray(image > threshold)
+
+
+def frame_mean(moved: Any, *, progress: Any = None, done: int = 0, total: int = 1) -> np.ndarray:
+    """Mean over the acquisition axis (float64) of a depth-first array, chunk by chunk."""
+    n = int(moved.shape[0])
+    acc = np.zeros(moved.shape[1:], dtype=np.float64)
+    plane = plane_nbytes(tuple(moved.shape), moved.dtype)
+    for part in depth_chunks(n, plane):
+        acc += _as_numpy(moved[part]).sum(axis=0, dtype=np.float64)
+        done += part.stop - part.start
+        report_progress(progress, done, total)
+    return acc / n
+
+
+def reference_mask(moved: Any) -> np.ndarray:
+    """The fixed foreground of a time series: Otsu foreground of the smoothed first frame.
+
+    The first frame holds the structure that was there when acquisition
+    started; a structure appearing later is not in the mask and so cannot
+    read as a change of brightness.
+    """
+    return otsu_mask(_as_numpy(moved[0]))
+
+
+def masked_profile(
+    moved: Any,
+    mask: np.ndarray | None,
+    *,
+    progress: Any = None,
+    done: int = 0,
+    total: int = 1,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Mean over *mask*, background level and foreground fraction of every frame.
+
+    All float64, one value per frame of a depth-first array. With ``mask=None``
+    every frame uses its own Otsu foreground (for the slices of one stack,
+    which show different structures); a frame without one uses all voxels. The background of each frame is the
+    sigma-clipped mean of its dim voxels (``profiles.background_level``), so a
+    haze that fades with the signal is subtracted frame by frame.
+    """
+    n = int(moved.shape[0])
+    if mask is not None:
+        mask = np.broadcast_to(mask, tuple(moved.shape[1:]))
+        if not mask.any():
+            fail("mask", "at least one foreground voxel", "<an empty mask>")
+    out = np.empty(n, dtype=np.float64)
+    levels = np.empty(n, dtype=np.float64)
+    counts = np.empty(n, dtype=np.float64)
+    plane = plane_nbytes(tuple(moved.shape), moved.dtype)
+    for part in depth_chunks(n, plane):
+        block = _as_numpy(moved[part])
+        for j, frame in enumerate(block):
+            here = mask if mask is not None else otsu_mask(frame)
+            if not here.any():
+                here = np.ones(frame.shape, dtype=bool)
+            out[part.start + j] = float(frame[here].mean(dtype=np.float64))
+            counts[part.start + j] = np.count_nonzero(here) / here.size
+            levels[part.start + j] = background_level(frame).level
+        done += part.stop - part.start
+        report_progress(progress, done, total)
+    return out, levels, counts
+
+
+def per_slice_masks(forward: Any, reverse: Any, *, progress: Any = None,
+                    min_contrast: float = 3.0) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Mean foreground signal of each slice of two passes on one shared mask per slice.
+
+    The mask of slice *i* is the Otsu foreground of the (smoothed) average of
+    the two passes' slice *i*: the same structure in both, so the ratio of the
+    two profiles cancels structure. Each pass's slice has its own background
+    subtracted (a haze fades with the signal, differently in the two passes).
+
+    Returns
+    -------
+    forward, reverse : ndarray of float64
+        Background-subtracted mean foreground per slice.
+    valid : ndarray of bool
+        Slices whose foreground stands at least *min_contrast* background
+        standard deviations above the background in both passes (a slice
+        without structure holds only noise and is left out of the fits).
+    """
+    n = int(forward.shape[0])
+    fwd = np.empty(n, dtype=np.float64)
+    rev = np.empty(n, dtype=np.float64)
+    valid = np.zeros(n, dtype=bool)
+    for i in range(n):
+        a = _as_numpy(forward[i]).astype(np.float64)
+        b = _as_numpy(reverse[i]).astype(np.float64)
+        mask = otsu_mask(0.5 * (a + b))
+        if not mask.any():
+            mask = np.ones(a.shape, dtype=bool)
+        bg_a, bg_b = background_level(a), background_level(b)
+        fwd[i] = float(a[mask].mean()) - bg_a.level
+        rev[i] = float(b[mask].mean()) - bg_b.level
+        valid[i] = bool(fwd[i] > min_contrast * bg_a.sigma and rev[i] > min_contrast * bg_b.sigma)
+        report_progress(progress, i + 1, n)
+    return fwd, rev, valid
