@@ -52,13 +52,13 @@ def test_time_increment_becomes_the_time_step(tmp_path):
 def test_plain_tiff_with_resolution_tags(tmp_path):
     """Baseline TIFF XResolution/YResolution in pixels per centimetre (TIFF 6.0 spec)."""
     data = np.zeros((4, 8, 8), np.uint16)
-    tifffile.imwrite(tmp_path / "r.tif", data, resolution=(1e4 / 0.5, 1e4 / 0.5),
+    tifffile.imwrite(tmp_path / "r.tif", data, photometric="minisblack", resolution=(1e4 / 0.5, 1e4 / 0.5),
                      resolutionunit="CENTIMETER")
     assert read_stack(tmp_path / "r.tif").scale[1:] == pytest.approx((0.5, 0.5))
 
 
 def test_plain_tiff_without_resolution_warns_and_uses_1(tmp_path, caplog):
-    tifffile.imwrite(tmp_path / "p.tif", np.zeros((4, 8, 8), np.uint16))
+    tifffile.imwrite(tmp_path / "p.tif", np.zeros((4, 8, 8), np.uint16), photometric="minisblack")
     with caplog.at_level(logging.WARNING):
         stack = read_stack(tmp_path / "p.tif")
     assert stack.scale == (1.0, 1.0, 1.0)

@@ -45,6 +45,7 @@ def run(args: argparse.Namespace) -> int:
     import napari
 
     viewer = napari.Viewer(title="stackdepth")
+    viewer.window.resize(1500, 950)
     open_in_viewer(viewer, layers)
     if args.screenshot:
         from qtpy.QtCore import QTimer

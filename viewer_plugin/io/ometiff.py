@@ -110,8 +110,8 @@ def read_stack(path: str | os.PathLike[str], *, lazy: bool | None = None) -> Sta
     path = Path(path)
     if not path.is_file():
         raise StackReadError(f"{path}: no such file")
-    with _quiet_tifffile():
-        return _read(path, lazy)
+    with _quiet_tifffile() as complaints:
+        return _read(path, lazy, complaints)
 
 
 class _Collect(logging.Handler):
@@ -141,9 +141,10 @@ class _quiet_tifffile:
             logger.debug("tifffile: %s", message)
 
 
-def _read(path: Path, lazy: bool | None) -> StackData:
+def _read(path: Path, lazy: bool | None, complaints: list[str]) -> StackData:
     try:
         with tifffile.TiffFile(path) as tif:
+            _check_structure(complaints, path)
             series = tif.series[0]
             axes = series.axes
             shape = tuple(series.shape)
@@ -154,7 +155,7 @@ def _read(path: Path, lazy: bool | None) -> StackData:
                 info = _plain_info(tif, path)
             nbytes = int(np.prod(shape, dtype=np.int64)) * series.dtype.itemsize
             if lazy or (lazy is None and nbytes > LAZY_BYTES):
-                data = _lazy(path)
+                data = _lazy(path, series)
             else:
                 data = series.asarray()
     except StackReadError:
@@ -174,12 +175,29 @@ def _read(path: Path, lazy: bool | None) -> StackData:
     return StackData(data, axes, scale, channels if n_channels else [], metadata, path)
 
 
-def _lazy(path: Path) -> Any:
+def _lazy(path: Path, series: Any) -> Any:
+    """A dask array reading one TIFF page per chunk (the file is opened per read, never held)."""
     import dask.array as da
-    import zarr
 
-    store = tifffile.imread(path, aszarr=True)
-    return da.from_zarr(zarr.open(store, mode="r"))
+    page_shape = tuple(series.pages[0].shape)
+    lead = tuple(series.shape[: len(series.shape) - len(page_shape)])
+    n_pages = int(np.prod(lead, dtype=np.int64))
+    flat = da.map_blocks(_read_page, path=str(path), page_shape=page_shape, dtype=series.dtype,
+                         chunks=((1,) * n_pages, *((n,) for n in page_shape)), meta=np.empty((0,) * (1 + len(page_shape)), series.dtype))
+    return flat.reshape(lead + page_shape)
+
+
+def _read_page(*, path: str, page_shape: tuple[int, ...], block_info: Any = None) -> np.ndarray:
+    index = block_info[None]["chunk-location"][0]
+    with tifffile.TiffFile(path) as tif:
+        return tif.series[0].pages[index].asarray().reshape((1, *page_shape))
+
+
+def _check_structure(complaints: list[str], path: Path) -> None:
+    """Raise when tifffile found offsets past the end of the file while opening it."""
+    for message in complaints:
+        if "invalid page offset" in message or "invalid value offset" in message:
+            raise StackReadError(f"{path}: truncated or corrupt: the file refers to data past its end")
 
 
 def _check_complete(tif: tifffile.TiffFile, series: Any, path: Path) -> None:
