@@ -1,17 +1,196 @@
-"""Projection widgets (placeholders until the projections issue lands)."""
+"""The three projection dock widgets: depth colour, brightest point, blended.
+
+They only translate between layers and the kernels in
+:mod:`viewer_plugin.kernels.projections`: every result is a new layer, the
+source layer and its data are never changed, and whole-stack work runs off
+the GUI thread through :class:`~viewer_plugin.widgets._runner.BackgroundTask`.
+"""
 
 from __future__ import annotations
 
-from ._common import PlaceholderWidget
+from typing import TYPE_CHECKING, Any, Callable
+
+import numpy as np
+from magicgui.widgets import CheckBox, ComboBox, FloatSpinBox, Label
+
+from ._proj_base import ProjectionWidget
+from ._proj_colour import DepthColourWidget
+
+if TYPE_CHECKING:  # pragma: no cover
+    import napari
+
+__all__ = ["BlendedWidget", "BrightestPointWidget", "DepthColourWidget"]
+
+#: Colour maps offered for depth maps: perceptually uniform first, rainbow-like last.
+DEPTH_MAP_COLOURS = ("viridis", "cividis", "plasma", "inferno", "magma", "turbo")
 
 
-class DepthColourWidget(PlaceholderWidget):
-    purpose = "Colours every pixel by the depth of its signal (in µm) in one 2-D image."
+class BrightestPointWidget(ProjectionWidget):
+    """Maximum-intensity projection plus the depth (µm) of each maximum.
+
+    Adds two layers: ``"<source> max"`` (the input dtype) and
+    ``"<source> depth of max (µm)"`` (float32, µm below the first slice, with
+    napari's colour bar), so hovering a pixel reads its depth in µm.
+    """
+
+    title = "Brightest-point projection"
+
+    def _add_options(self) -> None:
+        self.depth_cmap = ComboBox(label="Depth map colours", choices=list(DEPTH_MAP_COLOURS),
+                                   value="viridis")
+        self.hide_background = CheckBox(
+            text="Blank depth where max \u2264 lower contrast limit", value=False,
+            tooltip="Pixels whose maximum is at or below the layer's lower contrast limit get no "
+                    "depth (NaN): their 'depth' would only be the depth of the brightest noise")
+        self.note = Label(value="Depth is measured from the first slice (0 \u00b5m);\n"
+                                "ties go to the shallowest slice.")
+        self.extend([self.depth_cmap, self.hide_background, self.note])
+
+    def _options(self, layer: Any) -> dict[str, Any]:
+        low = float(layer.contrast_limits[0])
+        return {"cmap": self.depth_cmap.value,
+                "blank_below": low if self.hide_background.value else None,
+                "contrast_limits": tuple(float(v) for v in layer.contrast_limits),
+                "colormap": getattr(layer.colormap, "name", "gray")}
+
+    def _job(self, data: Any, axis: int, z_step: float, options: dict[str, Any],
+             progress: Callable[[int, int], None]) -> Any:
+        from ..kernels.projections import brightest_point
+
+        result = brightest_point(data, axis=axis, progress=progress)
+        values = np.asarray(result.values)
+        depth_um = np.asarray(result.depth).astype(np.float32) * np.float32(z_step)
+        if options["blank_below"] is not None:
+            depth_um[values <= options["blank_below"]] = np.nan
+        return values, depth_um
+
+    def _show(self, layer: Any, axis: int, z_step: float, options: dict[str, Any], result: Any) -> None:
+        values, depth_um = result
+        deepest = max(float(z_step) * (layer.data.shape[axis] - 1), float(z_step))
+        lo, hi = options["contrast_limits"]
+        self.max_layer = self.add_result(values, layer, axis, name=f"{layer.name} max",
+                                         colormap=options["colormap"],
+                                         contrast_limits=(lo, hi) if hi > lo else None)
+        self.depth_layer = self.add_result(
+            depth_um, layer, axis, name=f"{layer.name} depth of max (\u00b5m)",
+            colormap=options["cmap"], contrast_limits=(0.0, deepest),
+            metadata={"stackdepth": {"quantity": "depth of the brightest voxel", "unit": "\u00b5m",
+                                     "z_step_um": z_step, "depth_axis": axis,
+                                     "origin": "first slice = 0 \u00b5m"}})
+        self.depth_layer.colorbar.visible = True
+        self.status.value = (f"Added '{self.max_layer.name}' and '{self.depth_layer.name}' "
+                             f"(0\u2013{deepest:g} \u00b5m)")
 
 
-class BrightestPointWidget(PlaceholderWidget):
-    purpose = "Maximum-intensity projection plus a map of the depth (µm) of each maximum."
+class BlendedWidget(ProjectionWidget):
+    """Emission–absorption (front-to-back 'over') projection, plus optional side views.
 
+    Nearer structures partly hide deeper ones. Side views project along y and
+    along x with depth vertical; their layer scale uses the z-step so they are
+    geometrically right, and they are placed below the top view.
+    """
 
-class BlendedWidget(PlaceholderWidget):
-    purpose = "Alpha-blended projection: nearer structures partly hide deeper ones."
+    title = "Blended projection"
+
+    def _add_options(self) -> None:
+        self.auto_density = CheckBox(text="Automatic density (from the stack's depth)", value=True)
+        self.density = FloatSpinBox(label="Density (1/\u00b5m)", value=0.05, min=1e-5, max=100.0,
+                                    step=0.01, enabled=False,
+                                    tooltip="Extinction per \u00b5m at full brightness; higher "
+                                            "hides deeper structures more")
+        self.view = ComboBox(label="View from", choices=[("top (first slice)", "top"),
+                                                        ("bottom (last slice)", "bottom")],
+                             value="top")
+        self.auto_contrast = CheckBox(text="Automatic contrast (percentiles)", value=False,
+                                      tooltip="Otherwise the layer's contrast limits are used")
+        self.colour = ComboBox(label="Colour", choices=[("grey", None)] + [
+            (f"depth ({name})", name) for name in DEPTH_MAP_COLOURS[:5]], value=None,
+            tooltip="Grey, or each slice emits the colour of its depth (top view only)")
+        self.side_views = CheckBox(text="Side views along y and along x", value=False)
+        self.note = Label(value="A rendering for looking, not for measuring:\n"
+                                "blended brightness is not an intensity.")
+        self.extend([self.auto_density, self.density, self.view, self.auto_contrast,
+                     self.colour, self.side_views, self.note])
+        self.auto_density.changed.connect(lambda v: setattr(self.density, "enabled", not v))
+
+    def _options(self, layer: Any) -> dict[str, Any]:
+        from ..kernels._validate import check_number
+
+        density = None
+        if not self.auto_density.value:
+            density = check_number(self.density.value, name="density", low=0.0, low_open=True)
+        clim = None if self.auto_contrast.value else tuple(float(v) for v in layer.contrast_limits)
+        pixel = (float(layer.scale[-2]), float(layer.scale[-1]))
+        if density is None:  # the kernel's default for the depth axis, reused for the side views
+            from ..kernels.projections import DEFAULT_OPTICAL_DEPTH
+
+            axis = int(self.axis_combo.value)
+            density = DEFAULT_OPTICAL_DEPTH / (layer.data.shape[axis] * self.current_z_step())
+        return {"density": density, "clim": clim, "view": self.view.value, "cmap": self.colour.value,
+                "side_views": bool(self.side_views.value), "pixel": pixel}
+
+    def _job(self, data: Any, axis: int, z_step: float, options: dict[str, Any],
+             progress: Callable[[int, int], None]) -> Any:
+        from ..kernels.projections import blended_projection
+
+        passes = 3 if options["side_views"] else 1
+
+        def part(k: int) -> Callable[[int, int], None]:
+            return lambda done, total: progress(k * total + done, passes * total)
+
+        common = {"density": options["density"], "clim": options["clim"]}
+        top = blended_projection(data, z_step=z_step, view=options["view"], axis=axis,
+                                 cmap=options["cmap"], progress=part(0), **common)
+        sides = []
+        if options["side_views"]:
+            others = [i for i in range(data.ndim) if i != axis][-2:]
+            for k, side_axis in enumerate(others, start=1):
+                step = options["pixel"][k - 1]
+                view = blended_projection(data, z_step=step, view="top", axis=side_axis,
+                                          progress=part(k), **common)
+                depth_pos = axis if axis < side_axis else axis - 1
+                sides.append(np.moveaxis(np.asarray(view), depth_pos, -2))
+        return np.asarray(top), sides
+
+    def _show(self, layer: Any, axis: int, z_step: float, options: dict[str, Any], result: Any) -> None:
+        top, sides = result
+        name = f"{layer.name} blended ({options['view']})"
+        meta = {"stackdepth": {"density_per_um": options["density"], "view": options["view"],
+                               "clim": options["clim"], "z_step_um": z_step,
+                               "note": "a rendering, not a measurement"}}
+        if top.ndim == layer.ndim:  # RGB: coloured by depth
+            self.top_layer = self.add_result(top, layer, axis, name=name, rgb=True, metadata=meta)
+        else:
+            self.top_layer = self.add_result(top, layer, axis, name=name, colormap="gray",
+                                             contrast_limits=(0.0, max(float(np.nanmax(top)), 1e-6)),
+                                             metadata=meta)
+        names = [self.top_layer.name]
+        self.side_layers = []
+        if sides:
+            for which, view in zip(("y", "x"), sides):
+                self.side_layers.append(self._add_side(layer, axis, z_step, which, view))
+                names.append(self.side_layers[-1].name)
+        self.status.value = ("Added " + ", ".join(f"'{n}'" for n in names)
+                             + f" (density {options['density']:.3g}/\u00b5m)")
+
+    def _add_side(self, layer: Any, axis: int, z_step: float, along: str, view: np.ndarray) -> Any:
+        """Add a side view below the top view; depth vertical, scale z-step × pixel size."""
+        others = [i for i in range(layer.ndim) if i != axis]
+        y_axis, x_axis = others[-2], others[-1]
+        lead = others[:-2]
+        across = x_axis if along == "y" else y_axis
+        scale = [float(layer.scale[i]) for i in lead] + [z_step, float(layer.scale[across])]
+        ty, tx = float(layer.translate[y_axis]), float(layer.translate[x_axis])
+        height = layer.data.shape[y_axis] * float(layer.scale[y_axis])
+        width = layer.data.shape[x_axis] * float(layer.scale[x_axis])
+        gap = 0.05 * max(height, width)
+        left = tx if along == "y" else tx + width + gap
+        translate = [float(layer.translate[i]) for i in lead] + [ty + height + gap, left]
+        labels = [str(layer.axis_labels[i]) for i in lead] + [str(layer.axis_labels[axis]),
+                                                                str(layer.axis_labels[across])]
+        extra = {}
+        if getattr(layer, "units", None) is not None:
+            extra["units"] = [str(layer.units[i]) for i in (*lead, axis, across)]
+        return self.viewer.add_image(view, name=f"{layer.name} blended side (along {along})",
+                                     scale=scale, translate=translate, axis_labels=labels,
+                                     colormap="gray", **extra)

@@ -1,0 +1,257 @@
+"""The three projection dock widgets under Xvfb: new layers, geometry, untouched source, errors, cancel.
+
+Reference values: the brightest-point layers are compared with numpy's ``max`` and ``argmax``
+along the depth axis (numpy documentation: argmax returns the first occurrence on ties).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+pytestmark = pytest.mark.gui
+
+WAIT_MS = 60_000
+
+
+def _stack(shape=(12, 40, 48), seed=0):
+    """A small uint16 z-stack: Poisson background and one bright bar per slice at its own y."""
+    rng = np.random.default_rng(seed)
+    data = (100 + rng.poisson(5.0, shape)).astype(np.uint16)
+    for z in range(shape[0]):
+        data[z, 2 + 3 * z: 4 + 3 * z, 5:40] += 400
+    return data
+
+
+def _add_stack(viewer, data=None, **kwargs):
+    data = _stack() if data is None else data
+    kwargs.setdefault("scale", (2.0, 0.5, 0.5))
+    kwargs.setdefault("translate", (0.0, 10.0, -4.0))
+    kwargs.setdefault("axis_labels", ("z", "y", "x"))
+    kwargs.setdefault("units", ("um", "um", "um"))
+    return viewer.add_image(data, name="cells", **kwargs)
+
+
+def _run(qtbot, widget, *, signal="returned"):
+    worker = widget.compute(start_thread=False)
+    assert worker is not None
+    with qtbot.waitSignal(getattr(worker, signal), timeout=WAIT_MS):
+        worker.start()
+    qtbot.waitUntil(lambda: not widget.task.running, timeout=WAIT_MS)
+    return worker
+
+
+@pytest.fixture
+def errors(monkeypatch):
+    """Collect napari error notifications raised by the widgets (instead of exceptions)."""
+    seen: list[str] = []
+    import viewer_plugin.widgets._proj_base as base
+    import viewer_plugin.widgets._runner as runner
+
+    monkeypatch.setattr(runner, "show_error", seen.append)
+    import napari.utils.notifications as notes
+
+    monkeypatch.setattr(notes, "show_error", seen.append)
+    assert base  # imported for its side effect of loading the widgets
+    return seen
+
+
+def test_depth_colour_widget_adds_rgb_layer(make_napari_viewer, qtbot):
+    from viewer_plugin.widgets.projection import DepthColourWidget
+
+    viewer = make_napari_viewer(show=True)
+    data = _stack()
+    before = data.copy()
+    layer = _add_stack(viewer, data)
+    widget = DepthColourWidget(viewer)
+    viewer.window.add_dock_widget(widget, area="right")
+    assert widget.layer is layer
+    assert widget.axis_combo.value == 0          # the axis labelled "z"
+    assert widget.z_step.value == pytest.approx(2.0)  # from the layer scale
+    assert widget.method.choices[:3] == ("brightest", "weighted", "tinted")
+    assert widget.cmap.choices[:5] == ("viridis", "cividis", "plasma", "inferno", "magma")
+    _run(qtbot, widget)
+    out = viewer.layers["cells depth colour"]
+    assert out.rgb
+    assert out.data.shape == (40, 48, 3)
+    assert out.data.dtype == np.float32
+    assert 0.0 <= float(out.data.min()) and float(out.data.max()) <= 1.0
+    np.testing.assert_allclose(out.scale, (0.5, 0.5))
+    np.testing.assert_allclose(out.translate, (10.0, -4.0))
+    np.testing.assert_array_equal(layer.data, before)
+    assert widget.result_info["z_step_um"] == pytest.approx(2.0)
+    assert widget.result_info["depth_range_um"] == pytest.approx([0.0, 22.0])
+    assert widget.export_button.enabled
+
+
+def test_depth_colour_preview_is_downsampled(make_napari_viewer, qtbot):
+    from viewer_plugin.widgets.projection import DepthColourWidget
+
+    viewer = make_napari_viewer(show=True)
+    layer = _add_stack(viewer)
+    widget = DepthColourWidget(viewer)
+    worker = widget.update_preview(start_thread=False)
+    with qtbot.waitSignal(worker.finished, timeout=WAIT_MS):
+        worker.start()
+    preview = widget.preview_layer
+    assert preview is not None and preview.name == "cells depth colour (preview)"
+    assert preview.data.shape == (10, 12, 3)  # every 4th pixel of 40 x 48
+    np.testing.assert_allclose(preview.scale, (2.0, 2.0))
+    np.testing.assert_allclose(preview.translate, layer.translate[1:])
+    assert widget.legend.image_data is not None  # the colour bar in the dock
+    _run(qtbot, widget)
+    assert "cells depth colour (preview)" not in viewer.layers  # replaced by the full result
+
+
+def test_depth_colour_bad_depth_range_is_a_notification(make_napari_viewer, errors):
+    from viewer_plugin.widgets.projection import DepthColourWidget
+
+    viewer = make_napari_viewer(show=True)
+    _add_stack(viewer)
+    widget = DepthColourWidget(viewer)
+    widget.whole_depth.value = False
+    widget.depth_from.value = 10.0
+    widget.depth_to.value = 5.0
+    assert widget.compute(start_thread=False) is None
+    assert errors and "depth range" in errors[0]
+
+
+def test_bad_z_step_is_a_notification(make_napari_viewer, errors):
+    """A z-step override of 0 gives a notification naming the z-step, and no layer."""
+    from viewer_plugin.widgets.projection import BlendedWidget
+
+    viewer = make_napari_viewer(show=True)
+    _add_stack(viewer)
+    widget = BlendedWidget(viewer)
+    widget.override_z.value = True
+    widget.z_step.min = 0.0
+    widget.z_step.value = 0.0
+    assert widget.compute(start_thread=False) is None
+    assert errors and "z-step" in errors[0]
+    assert not any(layer.name.startswith("cells blended") for layer in viewer.layers)
+
+
+def test_brightest_point_layers_match_numpy(make_napari_viewer, qtbot):
+    from viewer_plugin.widgets.projection import BrightestPointWidget
+
+    viewer = make_napari_viewer(show=True)
+    data = _stack()
+    before = data.copy()
+    layer = _add_stack(viewer, data)
+    widget = BrightestPointWidget(viewer)
+    _run(qtbot, widget)
+    top = viewer.layers["cells max"]
+    depth = viewer.layers["cells depth of max (\u00b5m)"]
+    # reference: numpy max / argmax (first occurrence on ties), times the z-step
+    np.testing.assert_array_equal(top.data, data.max(axis=0))
+    assert top.data.dtype == np.uint16
+    assert depth.data.dtype == np.float32
+    np.testing.assert_allclose(depth.data, data.argmax(axis=0) * 2.0)
+    assert depth.colorbar.visible
+    assert tuple(depth.contrast_limits) == pytest.approx((0.0, 22.0))
+    np.testing.assert_allclose(depth.scale, (0.5, 0.5))
+    np.testing.assert_allclose(depth.translate, (10.0, -4.0))
+    # hovering a pixel of the bar in slice 5 reads its depth: 5 slices x 2 um
+    value = depth.get_value((10.0 + 0.5 * (2 + 3 * 5), -4.0 + 0.5 * 20), world=True)
+    assert value == pytest.approx(10.0)
+    np.testing.assert_array_equal(layer.data, before)
+
+
+def test_brightest_point_depth_axis_from_labels(make_napari_viewer, qtbot):
+    """A TZYX layer: depth is the axis labelled z, the time axis is kept."""
+    from viewer_plugin.widgets.projection import BrightestPointWidget
+
+    viewer = make_napari_viewer(show=True)
+    data = np.stack([_stack(seed=1), _stack(seed=2)])
+    layer = viewer.add_image(data, name="series", scale=(30.0, 2.0, 0.5, 0.5),
+                             axis_labels=("t", "z", "y", "x"))
+    widget = BrightestPointWidget(viewer)
+    assert widget.layer is layer and widget.axis_combo.value == 1
+    _run(qtbot, widget)
+    top = viewer.layers["series max"]
+    np.testing.assert_array_equal(top.data, data.max(axis=1))  # numpy reference
+    np.testing.assert_allclose(top.scale, (30.0, 0.5, 0.5))
+
+
+def test_blended_widget_side_views_geometry(make_napari_viewer, qtbot):
+    from viewer_plugin.widgets.projection import BlendedWidget
+
+    viewer = make_napari_viewer(show=True)
+    data = _stack()
+    before = data.copy()
+    layer = _add_stack(viewer, data)
+    widget = BlendedWidget(viewer)
+    widget.side_views.value = True
+    _run(qtbot, widget)
+    top = viewer.layers["cells blended (top)"]
+    along_y = viewer.layers["cells blended side (along y)"]
+    along_x = viewer.layers["cells blended side (along x)"]
+    assert top.data.shape == (40, 48) and top.data.dtype == np.float32
+    assert along_y.data.shape == (12, 48)   # depth vertical, x across
+    assert along_x.data.shape == (12, 40)   # depth vertical, y across
+    # geometrically right: vertical pixel = z-step, horizontal = pixel size
+    np.testing.assert_allclose(along_y.scale, (2.0, 0.5))
+    np.testing.assert_allclose(along_x.scale, (2.0, 0.5))
+    # placed below the top view, not on top of it
+    assert along_y.translate[0] >= layer.translate[1] + 40 * 0.5
+    assert along_x.translate[1] >= along_y.translate[1] + 48 * 0.5
+    np.testing.assert_array_equal(layer.data, before)
+
+
+def test_cancel_stops_and_adds_nothing(make_napari_viewer, qtbot):
+    from viewer_plugin.widgets.projection import BlendedWidget
+
+    viewer = make_napari_viewer(show=True)
+    _add_stack(viewer, _stack(shape=(24, 40, 48)))
+    widget = BlendedWidget(viewer)
+    worker = widget.compute(start_thread=False)
+    assert widget.cancel_button.enabled and not widget.compute_button.enabled
+    widget.task.cancel()  # before the first chunk: the first progress call raises Cancelled
+    with qtbot.waitSignal(worker.finished, timeout=WAIT_MS):
+        worker.start()
+    qtbot.waitUntil(lambda: not widget.task.running, timeout=WAIT_MS)
+    assert not any("blended" in layer.name for layer in viewer.layers)
+    assert widget.compute_button.enabled and not widget.cancel_button.enabled
+
+
+def test_export_figure_from_widget(make_napari_viewer, qtbot, tmp_path):
+    from viewer_plugin.widgets.projection import DepthColourWidget
+
+    viewer = make_napari_viewer(show=True)
+    _add_stack(viewer)
+    widget = DepthColourWidget(viewer)
+    _run(qtbot, widget)
+    files = widget.export_figure(tmp_path / "fig.png")
+    assert files is not None and files.figure.exists() and files.sidecar.exists()
+    assert widget.export_figure(tmp_path / "fig.png") is None  # refuses to overwrite
+
+
+def test_layer_list_refresh(make_napari_viewer):
+    from viewer_plugin.widgets.projection import BrightestPointWidget
+
+    viewer = make_napari_viewer(show=True)
+    widget = BrightestPointWidget(viewer)
+    assert widget.layer is None and not widget.compute_button.enabled
+    viewer.add_image(np.zeros((8, 8)), name="flat")  # 2-D: not offered
+    assert widget.layer is None
+    layer = _add_stack(viewer)
+    assert widget.layer is layer and widget.compute_button.enabled
+    viewer.layers.remove(layer)
+    assert widget.layer is None
+
+
+def test_demo_fibre_slab_depth_colour(make_napari_viewer, qtbot):
+    """The demo stack end to end: the brightest-point depth map spans the slab's depth."""
+    demo = pytest.importorskip("viewer_plugin.demo")
+    from viewer_plugin.widgets.projection import BrightestPointWidget
+
+    stack = demo.fibre_slab(seed=0, shape=(20, 64, 64))
+    viewer = make_napari_viewer(show=True)
+    layer = viewer.add_image(stack.data, name=stack.name, scale=stack.scale,
+                             axis_labels=("z", "y", "x"))
+    before = stack.data.copy()
+    widget = BrightestPointWidget(viewer)
+    _run(qtbot, widget)
+    depth = viewer.layers[f"{stack.name} depth of max (\u00b5m)"]
+    np.testing.assert_allclose(depth.data, stack.data.argmax(axis=0) * stack.scale[0])  # numpy
+    np.testing.assert_array_equal(layer.data, before)

@@ -1,0 +1,444 @@
+"""Publication figures of depth-coded projections (matplotlib Agg, no pyplot, no Qt).
+
+:func:`export_depth_figure` writes, atomically and never over an existing file
+unless asked:
+
+* the figure itself (PNG, TIFF or PDF, chosen by the file extension): the
+  depth-coded image with a scale bar in µm and a colour bar of depth in µm;
+* ``<figure>.json``: every parameter needed to make the figure again
+  (method, colour map, depth range, contrast, gamma, z-step, voxel size,
+  source file, stackdepth version, date);
+* ``<figure>.methods.txt``: a methods sentence to adapt for a paper.
+
+:func:`colour_bar_image` draws the same colour bar as a small RGBA array for
+the dock widgets, so the screen and the paper show identical ticks.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import math
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any, Mapping, Sequence
+
+import numpy as np
+
+from . import __version__
+from .kernels._validate import check_number, fail
+
+__all__ = [
+    "FigureFiles",
+    "LegendParts",
+    "colour_bar_image",
+    "export_depth_figure",
+    "legend_parts",
+    "methods_sentence",
+    "nice_length",
+]
+
+#: File extensions accepted for figures and the matplotlib format used for each.
+FIGURE_FORMATS = {".png": "png", ".tif": "tiff", ".tiff": "tiff", ".pdf": "pdf"}
+
+#: What each depth-coding method shows, in the words of a methods section.
+METHOD_WORDS = {
+    "brightest": "each pixel shows the depth of its brightest voxel along the optical axis, "
+                 "with brightness from that voxel's intensity",
+    "weighted": "each pixel shows the intensity-weighted mean depth of the voxels along the "
+                "optical axis, with brightness from the maximum intensity",
+    "tinted": "every slice was tinted with the colour of its depth and the tinted slices were "
+              "combined by maximum-intensity projection",
+}
+
+CAVEAT = ("Brightness is relative (display contrast), not a calibrated intensity; colours give "
+          "depth relative to the first slice of the stack.")
+
+
+@dataclass(frozen=True)
+class LegendParts:
+    """The pieces of a depth legend used for drawing.
+
+    Attributes
+    ----------
+    image : ndarray, float32, shape (rows, N, 3)
+        The colour table from shallow (column 0) to deep (column N - 1), values in [0, 1].
+    positions : ndarray of float
+        Tick positions as fractions of the table length, 0 = shallow end, 1 = deep end.
+    labels : tuple of str
+        Tick labels in µm.
+    depth_range : tuple of float
+        (shallow, deep) depth in µm at the two ends of the table.
+    """
+
+    image: np.ndarray
+    positions: np.ndarray
+    labels: tuple[str, ...]
+    depth_range: tuple[float, float]
+
+
+@dataclass(frozen=True)
+class FigureFiles:
+    """Paths written by :func:`export_depth_figure`."""
+
+    figure: Path
+    sidecar: Path
+    methods: Path
+    methods_text: str
+
+
+def legend_parts(legend: Any) -> LegendParts:
+    """Read a :class:`~viewer_plugin.kernels.legend.DepthLegend` for drawing.
+
+    Parameters
+    ----------
+    legend : DepthLegend
+        From :func:`viewer_plugin.kernels.projections.depth_legend` (uint8 ``image``,
+        ``tick_fractions``, ``tick_labels`` in µm, ``depth_range``, ``orientation``).
+
+    Returns
+    -------
+    LegendParts
+        The table as a horizontal float32 image in [0, 1] (shallow at column 0),
+        tick positions as fractions 0..1 from the shallow end, labels, depth range.
+
+    Raises
+    ------
+    ParameterError
+        When *legend* is not a depth legend.
+
+    Examples
+    --------
+    >>> from viewer_plugin.kernels.projections import depth_legend
+    >>> parts = legend_parts(depth_legend((0.0, 63.0), cmap="viridis"))
+    >>> parts.labels, parts.image.dtype
+    (('0', '20', '40', '60'), dtype('float32'))
+    """
+    needed = ("image", "tick_fractions", "tick_labels", "depth_range")
+    missing = [name for name in needed if not hasattr(legend, name)]
+    if missing:
+        fail("legend", "a depth legend from depth_legend()", f"<{type(legend).__name__} without "
+             f"{', '.join(missing)}>")
+    image = np.asarray(legend.image)
+    image = image.astype(np.float32) / 255.0 if image.dtype.kind in "ui" else image.astype(np.float32)
+    if getattr(legend, "orientation", "horizontal") == "vertical":
+        image = np.swapaxes(image, 0, 1)
+    return LegendParts(image[..., :3], np.asarray(legend.tick_fractions, dtype=np.float64),
+                       tuple(str(t) for t in legend.tick_labels),
+                       (float(legend.depth_range[0]), float(legend.depth_range[1])))
+
+
+def nice_length(span: float, *, fraction: float = 0.2) -> float:
+    """A 1-2-5 length close to *fraction* of *span* (for scale bars).
+
+    Examples
+    --------
+    >>> nice_length(300.0)
+    50.0
+    >>> nice_length(38.4)
+    5.0
+    """
+    span = check_number(span, name="span", low=0.0, low_open=True)
+    target = span * fraction
+    exponent = math.floor(math.log10(target))
+    best = 1.0
+    for step in (1.0, 2.0, 5.0, 10.0):
+        if step * 10.0**exponent <= target:
+            best = step
+    return float(best * 10.0**exponent)
+
+
+def _pixel_pair(pixel_size_um: Any) -> tuple[float, float]:
+    if np.ndim(pixel_size_um) == 0:
+        value = check_number(pixel_size_um, name="pixel_size_um", low=0.0, low_open=True)
+        return value, value
+    values = list(np.ravel(pixel_size_um))
+    if len(values) != 2:
+        fail("pixel_size_um", "a number or a pair (y, x) in µm", pixel_size_um)
+    return (check_number(values[0], name="pixel_size_um[0]", low=0.0, low_open=True),
+            check_number(values[1], name="pixel_size_um[1]", low=0.0, low_open=True))
+
+
+def _figure_rgb(result: Any) -> np.ndarray:
+    rgb = np.asarray(getattr(result, "rgb", result))
+    if rgb.ndim != 3 or rgb.shape[-1] != 3:
+        fail("result.rgb", "a 2-D RGB image of shape (y, x, 3)", rgb,
+             hint="pick one time point or channel first")
+    return np.clip(np.nan_to_num(rgb.astype(np.float32)), 0.0, 1.0)
+
+
+def _fmt(value: float) -> str:
+    return f"{value:.3g}"
+
+
+def methods_sentence(parameters: Mapping[str, Any], *, legend_range: Sequence[float] | None = None) -> str:
+    """A methods sentence describing a depth-coded projection.
+
+    Parameters
+    ----------
+    parameters : mapping
+        Keys used when present: ``method``, ``cmap``, ``depth_range_um``, ``z_step_um``,
+        ``voxel_size_um``, ``gamma``, ``clim`` (None = automatic), ``clim_used``.
+    legend_range : pair of float, optional
+        Depth range (µm) shown by the colour table, when *parameters* has none.
+
+    Returns
+    -------
+    str
+        One paragraph ending with a newline.
+
+    Examples
+    --------
+    >>> text = methods_sentence({"method": "brightest", "cmap": "viridis",
+    ...                          "depth_range_um": [0, 59], "z_step_um": 1.0})
+    >>> text.startswith("Depth was colour-coded with stackdepth")
+    True
+    """
+    method = str(parameters.get("method", "brightest"))
+    words = METHOD_WORDS.get(method, f"method '{method}'")
+    d_range = parameters.get("depth_range_um") or legend_range
+    cmap = parameters.get("cmap", "viridis")
+    text = f"Depth was colour-coded with stackdepth {__version__}: {words}"
+    if d_range is not None:
+        text += f" ({_fmt(float(d_range[0]))}\u2013{_fmt(float(d_range[1]))} \u00b5m, {cmap} colour map)"
+    else:
+        text += f" ({cmap} colour map)"
+    text += "."
+    z_step = parameters.get("z_step_um")
+    voxel = parameters.get("voxel_size_um")
+    if voxel is not None and len(voxel) == 3:
+        text += (f" The stack had a voxel size of {_fmt(voxel[0])} \u00d7 {_fmt(voxel[1])} \u00d7 "
+                 f"{_fmt(voxel[2])} \u00b5m (z \u00d7 y \u00d7 x).")
+    elif z_step is not None:
+        text += f" Slices were {_fmt(float(z_step))} \u00b5m apart."
+    clim = parameters.get("clim")
+    used = parameters.get("clim_used") or clim
+    gamma = parameters.get("gamma", 1.0)
+    if used is not None:
+        text += (f" Brightness was scaled linearly from {_fmt(used[0])} to {_fmt(used[1])} "
+                 "(raw intensity")
+        text += ")" if clim is not None else "; automatic 0.1 and 99.9 percentiles)"
+    else:
+        text += " Brightness was scaled between the 0.1 and 99.9 percentiles of the intensity"
+    text += "." if float(gamma) == 1.0 else f" with gamma {_fmt(float(gamma))}."
+    text += " " + CAVEAT
+    return text + "\n"
+
+
+def _check_targets(path: Path, *, overwrite: bool) -> tuple[Path, Path, Path, str]:
+    ext = "".join(path.suffixes[-1:]).lower()
+    if ext not in FIGURE_FORMATS:
+        fail("path", "a file name ending in " + ", ".join(FIGURE_FORMATS), str(path))
+    sidecar = path.with_name(path.name + ".json")
+    methods = path.with_name(path.name + ".methods.txt")
+    if not path.parent.is_dir():
+        raise FileNotFoundError(f"figure: folder {path.parent} does not exist")
+    if not overwrite:
+        existing = [str(p) for p in (path, sidecar, methods) if p.exists()]
+        if existing:
+            raise FileExistsError(
+                f"figure: {', '.join(existing)} already exists; choose another name or "
+                "allow overwriting (overwrite=True, --overwrite)")
+    return path, sidecar, methods, FIGURE_FORMATS[ext]
+
+
+def _draw_scale_bar(ax: Any, width_um: float, height_um: float, length_um: float) -> None:
+    from matplotlib.patches import Rectangle
+
+    margin = 0.05 * width_um
+    thick = max(0.012 * height_um, 0.5 * 1e-3 * height_um)
+    x0 = width_um - margin - length_um
+    y0 = height_um - margin - thick
+    ax.add_patch(Rectangle((x0, y0), length_um, thick, facecolor="white", edgecolor="none"))
+    label = f"{nice_label(length_um)} \u00b5m"
+    ax.text(x0 + length_um / 2.0, y0 - 0.01 * height_um, label, color="white",
+            ha="center", va="bottom", fontsize=8)
+
+
+def nice_label(value: float) -> str:
+    """Label a length without trailing zeros (``50`` not ``50.0``)."""
+    return f"{value:g}"
+
+
+def _draw_colour_bar(ax: Any, parts: LegendParts, *, vertical: bool, colour: str = "black") -> None:
+    """Draw *parts* into *ax*; depth grows downward (vertical) or rightward."""
+    d0, d1 = parts.depth_range
+    table = parts.image
+    if vertical:
+        ax.imshow(np.swapaxes(table, 0, 1), aspect="auto", extent=(0, 1, d1, d0),
+                  interpolation="nearest")
+        ax.set_xticks([])
+        ax.yaxis.tick_right()
+        ax.yaxis.set_label_position("right")
+        ax.set_yticks(d0 + parts.positions * (d1 - d0), parts.labels)
+        ax.set_ylabel("Depth (\u00b5m)", color=colour)
+        ax.tick_params(axis="y", colors=colour, labelsize=8)
+    else:
+        ax.imshow(table, aspect="auto", extent=(d0, d1, 0, 1), interpolation="nearest")
+        ax.set_yticks([])
+        ax.set_xticks(d0 + parts.positions * (d1 - d0), parts.labels)
+        ax.set_xlabel("Depth (\u00b5m)", color=colour)
+        ax.tick_params(axis="x", colors=colour, labelsize=8)
+    for spine in ax.spines.values():
+        spine.set_edgecolor(colour)
+
+
+def _render_figure(rgb: np.ndarray, parts: LegendParts, *, pixel: tuple[float, float],
+                   scale_bar_um: float, title: str | None, dpi: int) -> Any:
+    from matplotlib.figure import Figure
+
+    ny, nx = rgb.shape[:2]
+    height_um, width_um = ny * pixel[0], nx * pixel[1]
+    image_w = 5.0
+    image_h = min(8.0, max(1.5, image_w * height_um / width_um))
+    fig = Figure(figsize=(image_w + 1.3, image_h + (0.5 if title else 0.2)), dpi=dpi)
+    ax = fig.add_axes((0.02, 0.03, image_w / (image_w + 1.3) - 0.02, 0.94 if not title else 0.88))
+    ax.imshow(rgb, extent=(0, width_um, height_um, 0), interpolation="nearest")
+    ax.set_axis_off()
+    ax.set_anchor("W")
+    _draw_scale_bar(ax, width_um, height_um, scale_bar_um)
+    left = image_w / (image_w + 1.3) + 0.03
+    cax = fig.add_axes((left, 0.15, 0.045, 0.7))
+    _draw_colour_bar(cax, parts, vertical=True)
+    if title:
+        fig.suptitle(title, fontsize=10, y=0.985)
+    return fig
+
+
+def export_depth_figure(
+    result: Any,
+    path: str | Path,
+    *,
+    pixel_size_um: float | Sequence[float],
+    scale_bar_um: float | None = None,
+    title: str | None = None,
+    source_name: str = "",
+    parameters: Mapping[str, Any] | None = None,
+    overwrite: bool = False,
+    dpi: int = 300,
+) -> FigureFiles:
+    """Save a depth-coded projection as a figure for a paper, with its sidecars.
+
+    Parameters
+    ----------
+    result : object
+        The result of ``depth_coded_projection`` (``.rgb`` (y, x, 3) in [0, 1],
+        ``.depth_range`` in µm, ``.lut``); the colour bar is ``depth_legend(result)``.
+    path : str or Path
+        Figure file; ``.png``, ``.tif``/``.tiff`` or ``.pdf``.
+    pixel_size_um : float or (float, float)
+        Pixel size in µm (y, x); the image is drawn with this aspect ratio.
+    scale_bar_um : float, optional
+        Scale bar length in µm; default: a 1-2-5 length near a fifth of the width.
+    title : str, optional
+        Title above the image.
+    source_name : str
+        Source file or layer name, recorded in the sidecar.
+    parameters : mapping, optional
+        Parameters of the projection (method, cmap, depth_range_um, clim, gamma,
+        z_step_um, voxel_size_um, source_file, ...), recorded in the sidecar and
+        used for the methods sentence.
+    overwrite : bool
+        Replace existing files; otherwise an existing figure or sidecar raises.
+    dpi : int
+        Resolution of raster formats.
+
+    Returns
+    -------
+    FigureFiles
+        Paths of the figure, the JSON sidecar and the methods text, and that text.
+
+    Raises
+    ------
+    FileExistsError
+        When one of the three files exists and *overwrite* is False.
+    FileNotFoundError
+        When the target folder does not exist.
+    ParameterError
+        For an unsupported extension, a result that is not a 2-D RGB image, or a bad size.
+
+    Examples
+    --------
+    >>> nice_length(120.0)
+    20.0
+    """
+    from matplotlib import rc_context
+
+    from .commands._common import atomic_write_bytes, write_json
+    from .kernels.projections import depth_legend
+
+    path, sidecar, methods, fmt = _check_targets(Path(path), overwrite=overwrite)
+    rgb = _figure_rgb(result)
+    pixel = _pixel_pair(pixel_size_um)
+    dpi = int(check_number(dpi, name="dpi", low=30, high=2400))
+    width_um = rgb.shape[1] * pixel[1]
+    if scale_bar_um is None:
+        scale_bar_um = nice_length(width_um)
+    scale_bar_um = check_number(scale_bar_um, name="scale_bar_um", low=0.0, low_open=True,
+                                high=width_um)
+    params = dict(parameters or {})
+    if params.get("clim_used") is None and getattr(result, "clim", None) is not None:
+        params["clim_used"] = [float(v) for v in result.clim]
+    legend = depth_legend(result)
+    parts = legend_parts(legend)
+    text = methods_sentence(params, legend_range=parts.depth_range)
+    with rc_context({"pdf.fonttype": 42, "ps.fonttype": 42, "svg.fonttype": "none"}):
+        fig = _render_figure(rgb, parts, pixel=pixel, scale_bar_um=scale_bar_um, title=title, dpi=dpi)
+        atomic_write_bytes(path, lambda tmp: fig.savefig(tmp, format=fmt, dpi=dpi,
+                                                         facecolor="white"))
+    record = {
+        "figure": path.name,
+        "stackdepth_version": __version__,
+        "created_utc": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
+        "source": source_name or params.get("source_file"),
+        "parameters": params,
+        "pixel_size_um": list(pixel),
+        "scale_bar_um": scale_bar_um,
+        "colour_bar": {"unit": "\u00b5m", "depth_range_um": list(parts.depth_range),
+                       "tick_labels": list(parts.labels),
+                       "tick_depths_um": [parts.depth_range[0] + f * (parts.depth_range[1]
+                                          - parts.depth_range[0]) for f in parts.positions]},
+        "image_shape": list(rgb.shape[:2]),
+        "methods": text.strip(),
+        "caveat": CAVEAT,
+    }
+    write_json(sidecar, record)
+    atomic_write_bytes(methods, lambda tmp: tmp.write_text(text, encoding="utf-8"))
+    return FigureFiles(path, sidecar, methods, text)
+
+
+def colour_bar_image(legend: Any, *, width_px: int = 260, height_px: int = 54,
+                     dark: bool = True) -> np.ndarray:
+    """Draw a horizontal depth colour bar with tick labels in µm as an RGBA image.
+
+    Parameters
+    ----------
+    legend : object
+        The kernels' depth legend (see :func:`legend_parts`).
+    width_px, height_px : int
+        Size of the image in pixels.
+    dark : bool
+        Light text for a dark (napari default) theme.
+
+    Returns
+    -------
+    ndarray of uint8, shape (height_px, width_px, 4)
+
+    Raises
+    ------
+    ParameterError
+        When *legend* lacks the expected fields.
+    """
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    parts = legend_parts(legend)
+    dpi = 100
+    fig = Figure(figsize=(width_px / dpi, height_px / dpi), dpi=dpi)
+    fig.patch.set_alpha(0.0)
+    canvas = FigureCanvasAgg(fig)
+    ax = fig.add_axes((0.05, 0.62, 0.9, 0.33))
+    _draw_colour_bar(ax, parts, vertical=False, colour="#e0e0e0" if dark else "black")
+    ax.xaxis.label.set_fontsize(8)
+    ax.xaxis.labelpad = 1
+    canvas.draw()
+    return np.asarray(canvas.buffer_rgba()).copy()
