@@ -1,0 +1,1 @@
+"""matplotlib figure builders shared by the dock widgets and the command line (no Qt, no pyplot)."""
