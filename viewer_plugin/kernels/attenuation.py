@@ -220,8 +220,9 @@ def _findings(fit: models.ExponentialFit, fg: Foreground, length: float,
     if missing:
         notes.append(f"{missing} slice(s) had too little foreground to measure and were left out of the fit")
     if math.isinf(length):
-        notes.append("the signal does not decrease with depth: no correction is applied")
-    elif math.isfinite(fit.r_squared) and fit.r_squared < 0.9:
+        notes.append("the signal does not decrease with depth: the exponential model applies "
+                     "no correction")
+    if math.isfinite(fit.r_squared) and fit.r_squared < 0.9:
         notes.append(f"the exponential model explains only {fit.r_squared:.0%} of the depth variation: "
                      "the stack may not decay exponentially (try the smooth model)")
     if math.isfinite(length) and (math.isinf(interval[1]) or interval[1] > 2 * interval[0]):
@@ -272,7 +273,7 @@ def estimate_attenuation(
     offset : float, optional
         Known detector offset; by default estimated from the slice backgrounds.
     smoothing_um : float, optional
-        Kernel standard deviation of the smooth model; default a sixth of the depth range.
+        Kernel standard deviation of the smooth model; default a tenth of the depth range.
     lateral_step : int, optional
         Lateral sampling step; default gives about 65 000 voxels per slice.
     progress : callable, optional
@@ -341,7 +342,7 @@ def estimate_attenuation(
     sample, done = lateral_sample(moved, moved_mask(mask, stack.shape, axis), step, progress, total)
     _check_sample(stack, sample, mask)
     depth = np.arange(moved.shape[0], dtype=np.float64) * z_step
-    bandwidth = smoothing_um if smoothing_um is not None else max(depth[-1] / 6.0, z_step)
+    bandwidth = smoothing_um if smoothing_um is not None else max(depth[-1] / 10.0, z_step)
     background = measure_background(sample)
     above = sample - background.level[:, None].astype(np.float32)
     fg, gain, curve, n_iter, converged = _iterate(above, background.sigma, depth, model, bandwidth,
