@@ -1,23 +1,600 @@
-"""Projections along the depth axis (placeholder; filled by the projections issue)."""
+"""Projections of a z-stack along its depth axis.
+
+* :func:`brightest_point` -- maximum-intensity projection and the index of
+  the slice holding each maximum;
+* :func:`depth_coded_projection` -- an RGB image whose colour tells the depth
+  and whose brightness tells the intensity (three ways to pick the depth);
+* :func:`blended_projection` -- emission-absorption compositing (Max 1995),
+  where structures in front hide those behind them;
+* :func:`depth_legend` -- the colour bar of a depth-coded image (in
+  :mod:`.legend`, re-exported here).
+
+Every projection is a chunk -> combine -> aggregate reduction over z-chunks
+(see :mod:`._proj_combine`), so numpy arrays and z-chunked dask arrays share
+the code, progress is reported between chunks, and no float copy of the
+whole stack is ever made. The inner loops are compiled with numba
+(:mod:`._numba_proj`); call :func:`warm_up` once, e.g. in a background
+thread, to compile (or load from the on-disk cache) before the first use.
+
+A depth-coded colour shows *where along the optical axis* the signal was
+brightest, in µm from the first slice; it is not a height map of a surface,
+and the brightness is relative (display limits), not calibrated intensity.
+"""
 
 from __future__ import annotations
 
-from typing import Any
+import threading
+from dataclasses import dataclass
+from typing import Any, Callable, Optional
 
-__all__ = ["brightest_point", "depth_coded_projection", "blended_projection", "depth_legend"]
+import numpy as np
+
+from . import _numba_proj as nb
+from ._proj_combine import estimate_clim, fold_chunks, kernel_dtype, resolve_lut, slice_colours
+from ._validate import check_choice, check_interval, check_number, check_stack, depth_first
+from .legend import DepthLegend, depth_legend
+
+__all__ = [
+    "BrightestPoint",
+    "DepthCodedProjection",
+    "DepthLegend",
+    "METHODS",
+    "VIEWS",
+    "DEFAULT_OPTICAL_DEPTH",
+    "CLIM_PERCENTILES",
+    "brightest_point",
+    "depth_coded_projection",
+    "blended_projection",
+    "depth_legend",
+    "warm_up",
+]
+
+#: Ways of choosing the depth of a pixel in :func:`depth_coded_projection`.
+METHODS = ("brightest", "weighted", "tinted")
+#: Viewing sides of :func:`blended_projection`.
+VIEWS = ("top", "bottom")
+#: Optical depth of a fully bright column through the whole stack when
+#: ``density=None`` in :func:`blended_projection`.
+DEFAULT_OPTICAL_DEPTH = 10.0
+#: Percentiles of the stack used as display limits when ``clim=None``.
+CLIM_PERCENTILES = (0.1, 99.9)
+
+Progress = Optional[Callable[[int, int], None]]
+
+# One compiled parallel kernel at a time: numba's thread pools are not meant
+# to be entered from several Python threads at once.
+_KERNEL_LOCK = threading.RLock()
 
 
-def brightest_point(stack: Any, *, axis: int = 0) -> Any:
-    raise NotImplementedError("brightest_point is not implemented yet")
+@dataclass(frozen=True, eq=False)
+class BrightestPoint:
+    """Result of :func:`brightest_point`.
+
+    Attributes
+    ----------
+    values : ndarray
+        Maximum along the depth axis, in the input dtype (NaN where a ray
+        holds only NaN).
+    depth : ndarray of int32
+        Index of the slice holding the maximum (the first one on ties, as
+        :func:`numpy.argmax`; 0 where a ray holds only NaN).
+    """
+
+    values: np.ndarray
+    depth: np.ndarray
 
 
-def depth_coded_projection(stack: Any, **options: Any) -> Any:
-    raise NotImplementedError("depth_coded_projection is not implemented yet")
+@dataclass(frozen=True, eq=False)
+class DepthCodedProjection:
+    """Result of :func:`depth_coded_projection`.
+
+    Attributes
+    ----------
+    rgb : ndarray of float32, shape (..., 3)
+        Colour = depth through the colour table, scaled by brightness; in [0, 1].
+    depth_um : ndarray of float32
+        Depth of each pixel in µm from the first slice; NaN where nothing
+        exceeds ``clim[0]``.
+    brightness : ndarray of float32
+        ``clip((max - lo) / (hi - lo), 0, 1) ** gamma``, in [0, 1].
+    depth_range : tuple of float
+        (d0, d1) in µm mapped to the two ends of the colour table.
+    lut : ndarray of float64, shape (N, 3)
+        The colour table used (entry ``floor(t * N)`` for position t).
+    clim : tuple of float
+        (lo, hi) display limits used, in input units.
+    method : str
+        "brightest", "weighted" or "tinted".
+    gamma : float
+        Exponent applied to the brightness.
+    z_step : float
+        Slice spacing in µm.
+    """
+
+    rgb: np.ndarray
+    depth_um: np.ndarray
+    brightness: np.ndarray
+    depth_range: tuple[float, float]
+    lut: np.ndarray
+    clim: tuple[float, float]
+    method: str
+    gamma: float
+    z_step: float
 
 
-def blended_projection(stack: Any, **options: Any) -> Any:
-    raise NotImplementedError("blended_projection is not implemented yet")
+# --- shared preparation -----------------------------------------------------
+
+def _depth_view(stack: Any, axis: int) -> tuple[Any, int]:
+    """Checked, depth-first view of *stack* and its number of slices."""
+    stack, axis = check_stack(stack, axis=axis)
+    v = depth_first(stack, axis)
+    return v, int(v.shape[0])
 
 
-def depth_legend(*args: Any, **options: Any) -> Any:
-    raise NotImplementedError("depth_legend is not implemented yet")
+def _resolve_clim(clim: Any, v: Any) -> tuple[float, float]:
+    """User display limits (checked) or percentiles of a subsample."""
+    pair = check_interval(clim, name="clim")
+    return pair if pair is not None else estimate_clim(v, CLIM_PERCENTILES)
+
+
+def _resolve_depth_range(depth_range: Any, n: int, z_step: float) -> tuple[float, float]:
+    """User colour range (checked) or first slice .. last slice."""
+    pair = check_interval(depth_range, name="depth_range")
+    if pair is not None:
+        return pair
+    return 0.0, (n - 1) * z_step if n > 1 else z_step
+
+
+def _initial_values(shape: tuple, kdtype: np.dtype) -> np.ndarray:
+    """Running-maximum state: NaN for floats, the minimum for integers."""
+    if kdtype.kind == "f":
+        return np.full(shape, np.nan, kdtype)
+    return np.full(shape, np.iinfo(kdtype).min, kdtype)
+
+
+def _fold_brightest(v: Any, progress: Progress) -> tuple[np.ndarray, np.ndarray]:
+    """(values, index) of the brightest point; index -1 on all-NaN rays."""
+    vals = _initial_values(v.shape[1:], kernel_dtype(v.dtype))
+    idx = np.full(v.shape[1:], -1, np.int32)
+
+    def fold(block: np.ndarray, z0: int, index: tuple) -> None:
+        nb.brightest_update(block, z0, vals[index], idx[index])
+
+    with _KERNEL_LOCK:
+        fold_chunks(v, fold, progress=progress)
+    return vals, idx
+
+
+def _brightness(vals: np.ndarray, lo: float, hi: float, gamma: float) -> np.ndarray:
+    """``clip((vals - lo) / (hi - lo), 0, 1) ** gamma`` as float32; NaN -> 0."""
+    out = vals.astype(np.float32)
+    out -= np.float32(lo)
+    out *= np.float32(1.0 / (hi - lo))
+    np.clip(out, 0.0, 1.0, out=out)
+    if out.dtype.kind == "f" and vals.dtype.kind == "f":
+        out[np.isnan(out)] = 0.0
+    if gamma != 1.0:
+        np.power(out, np.float32(gamma), out=out)
+    return out
+
+
+# --- brightest point ------------------------------------------------------------
+
+def brightest_point(stack: Any, *, axis: int = 0, progress: Progress = None) -> BrightestPoint:
+    """Maximum-intensity projection and the slice index of each maximum.
+
+    Parameters
+    ----------
+    stack : array_like or dask array
+        Stack with at least 3 dimensions (e.g. ZYX, TZYX, CZYX), integer,
+        boolean or floating point. NaN counts as no signal. Not modified.
+    axis : int, optional
+        The depth axis (default 0). Other axes are kept in order.
+    progress : callable, optional
+        ``progress(done, total)`` called between z-chunks; may raise
+        :class:`~viewer_plugin.kernels.Cancelled`.
+
+    Returns
+    -------
+    BrightestPoint
+        ``values`` in the input dtype and ``depth`` (int32 slice index), both
+        of the stack's shape without *axis*. Ties go to the smallest index,
+        as :func:`numpy.argmax`; a ray of only NaN gives NaN and index 0.
+
+    Raises
+    ------
+    ParameterError
+        For fewer than 3 dimensions, an empty axis, a non-numeric dtype or an
+        axis out of range.
+
+    References
+    ----------
+    .. [1] numpy.argmax documentation: the first occurrence of the maximum
+       is returned.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> stack = np.array([[[1, 5]], [[3, 5]], [[2, 0]]], dtype=np.uint8)
+    >>> result = brightest_point(stack)
+    >>> result.values
+    array([[3, 5]], dtype=uint8)
+    >>> result.depth
+    array([[1, 0]], dtype=int32)
+    """
+    v, _ = _depth_view(stack, axis)
+    vals, idx = _fold_brightest(v, progress)
+    np.maximum(idx, 0, out=idx)
+    values = vals if vals.dtype == v.dtype else vals.astype(v.dtype)
+    return BrightestPoint(values=values, depth=idx)
+
+
+# --- depth-coded projection -----------------------------------------------------
+
+def _colourize(depth_um: np.ndarray, bright: np.ndarray, d_range: tuple, lut: np.ndarray) -> np.ndarray:
+    """RGB float32 (..., 3) from depth (through *lut*) times brightness."""
+    shape = depth_um.shape
+    rgb = np.empty(shape + (3,), np.float32)
+    d0, d1 = d_range
+    with _KERNEL_LOCK:
+        nb.colour_from_depth(
+            depth_um.reshape(-1, shape[-1]), bright.reshape(-1, shape[-1]),
+            float(d0), float(d1 - d0), lut, rgb.reshape(-1, shape[-1], 3),
+        )
+    return rgb
+
+
+def _coded_brightest(v: Any, lo: float, hi: float, z_step: float, progress: Progress) -> tuple:
+    vals, idx = _fold_brightest(v, progress)
+    depth = idx.astype(np.float32)
+    del idx
+    depth *= np.float32(z_step)
+    depth[~(vals > lo)] = np.nan
+    return vals, depth
+
+
+def _coded_weighted(v: Any, lo: float, hi: float, z_step: float, progress: Progress) -> tuple:
+    others = v.shape[1:]
+    vals = _initial_values(others, kernel_dtype(v.dtype))
+    sum_u = np.zeros(others, np.float64)
+    sum_uz = np.zeros(others, np.float64)
+    scale = 1.0 / (hi - lo)
+
+    def fold(block: np.ndarray, z0: int, index: tuple) -> None:
+        nb.weighted_update(block, z0, lo, scale, vals[index], sum_u[index], sum_uz[index])
+
+    with _KERNEL_LOCK:
+        fold_chunks(v, fold, progress=progress)
+    np.divide(sum_uz, sum_u, out=sum_uz, where=sum_u > 0)
+    sum_uz[~(sum_u > 0)] = np.nan
+    del sum_u
+    sum_uz *= z_step
+    return vals, sum_uz.astype(np.float32)
+
+
+def _coded_tinted(
+    v: Any, lo: float, hi: float, colours: np.ndarray, gamma: float, progress: Progress
+) -> tuple:
+    """(values, index, rgb) of the tinted method; rgb = max_z colour_z * u_z**gamma."""
+    others = v.shape[1:]
+    vals = _initial_values(others, kernel_dtype(v.dtype))
+    idx = np.full(others, -1, np.int32)
+    tint = np.zeros(others[:-2] + (3,) + others[-2:], np.float32)
+    # colour * u**g == (colour**(1/g) * u)**g, so gamma is applied once at the end
+    pre = np.ascontiguousarray(colours ** (1.0 / gamma))
+    scale = 1.0 / (hi - lo)
+
+    def fold(block: np.ndarray, z0: int, index: tuple) -> None:
+        nb.tinted_update(block, z0, lo, scale, pre, vals[index], idx[index], tint[index])
+
+    with _KERNEL_LOCK:
+        fold_chunks(v, fold, progress=progress)
+    rgb = np.ascontiguousarray(np.moveaxis(tint, -3, -1))
+    del tint
+    if gamma != 1.0:
+        np.power(rgb, np.float32(gamma), out=rgb)
+    return vals, idx, rgb
+
+
+def depth_coded_projection(
+    stack: Any,
+    *,
+    z_step: float = 1.0,
+    method: str = "brightest",
+    cmap: Any = "viridis",
+    depth_range: Optional[tuple[float, float]] = None,
+    clim: Optional[tuple[float, float]] = None,
+    gamma: float = 1.0,
+    axis: int = 0,
+    progress: Progress = None,
+) -> DepthCodedProjection:
+    """Colour-code depth, and show intensity as brightness, in one RGB image.
+
+    Parameters
+    ----------
+    stack : array_like or dask array
+        Stack with at least 3 dimensions; integer, boolean or floating point.
+        NaN counts as no signal. Not modified.
+    z_step : float, optional
+        Slice spacing in µm (> 0). Depths are ``index * z_step`` from the
+        first slice along *axis*.
+    method : {"brightest", "weighted", "tinted"}, optional
+        How each pixel's depth and colour are chosen:
+
+        * "brightest": the depth of the brightest voxel on the ray;
+        * "weighted": the intensity-weighted mean depth along the ray, with
+          weights u = clip((I - lo) / (hi - lo), 0, 1); smoother on thick
+          fibres, but a pixel where two fibres at different depths cross
+          gets a colour between theirs;
+        * "tinted": every slice coloured by its own depth and scaled by its
+          own u ** gamma, then the channel-wise maximum over slices: fibres
+          crossing at different depths both stay visible. ``depth_um`` is
+          then the depth of the brightest voxel.
+
+        For "brightest" and "weighted", ``rgb = colour(depth) * brightness``
+        with ``colour(depth) = cmap((depth - d0) / (d1 - d0))`` (position
+        clipped to [0, 1]) and ``brightness = clip((max - lo) / (hi - lo),
+        0, 1) ** gamma``.
+    cmap : str, matplotlib Colormap or array of shape (N, 3), optional
+        Colour table from the first to the last depth of *depth_range*.
+        Default "viridis" (perceptually uniform, readable with red-green
+        colour-vision deficiency).
+    depth_range : (float, float), optional
+        (d0, d1) in µm mapped to the ends of the colour table; default the
+        first to the last slice, ``(0, (n - 1) * z_step)``.
+    clim : (float, float), optional
+        (lo, hi) display limits in input units. Default: the 0.1 and 99.9
+        percentiles of the stack, **estimated from a strided subsample**
+        (whole pixel rows, about a million values) for speed; pass the
+        viewer's contrast limits to match the display.
+    gamma : float, optional
+        Exponent (> 0) applied to the normalised brightness.
+    axis : int, optional
+        The depth axis (default 0); other axes are kept.
+    progress : callable, optional
+        ``progress(done, total)`` between z-chunks; may raise Cancelled.
+
+    Returns
+    -------
+    DepthCodedProjection
+        ``rgb`` float32 (..., 3) in [0, 1]; ``depth_um`` float32 (NaN where
+        nothing exceeds lo); ``brightness`` float32 in [0, 1];
+        ``depth_range``; ``lut`` ((N, 3) float64); ``clim``; ``method``;
+        ``gamma``; ``z_step``.
+
+    Raises
+    ------
+    ParameterError
+        For a stack that is not a numeric array of >= 3 dimensions, an
+        unknown method or colour table, z_step or gamma <= 0, or a clim or
+        depth_range whose high end is not above the low end.
+
+    Notes
+    -----
+    Colours are relative: they encode position within *depth_range* and the
+    brightness is scaled by *clim*; neither is a calibrated quantity.
+
+    References
+    ----------
+    .. [1] F. Crameri, G. E. Shephard, P. J. Heron, "The misuse of colour in
+       science communication", Nat Commun 11:5444, 2020,
+       doi:10.1038/s41467-020-19160-7 (why not a rainbow colour table).
+    .. [2] J. R. Nuñez, C. R. Anderton, R. S. Renslow, "Optimizing colormaps
+       with consideration for color vision deficiency", PLoS ONE
+       13(7):e0199239, 2018, doi:10.1371/journal.pone.0199239.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> stack = np.zeros((3, 1, 2), np.uint16)
+    >>> stack[2, 0, 0] = 100          # deep spot
+    >>> stack[0, 0, 1] = 100          # shallow spot
+    >>> result = depth_coded_projection(stack, z_step=2.0, clim=(0, 100))
+    >>> result.depth_um
+    array([[4., 0.]], dtype=float32)
+    >>> result.depth_range
+    (0.0, 4.0)
+    >>> result.rgb.shape, result.rgb.dtype
+    ((1, 2, 3), dtype('float32'))
+    """
+    v, n = _depth_view(stack, axis)
+    z_step = check_number(z_step, name="z_step", low=0.0, low_open=True)
+    method = check_choice(method, name="method", choices=METHODS)
+    lut = resolve_lut(cmap)
+    gamma = check_number(gamma, name="gamma", low=0.0, low_open=True)
+    d_range = _resolve_depth_range(depth_range, n, z_step)
+    lo, hi = _resolve_clim(clim, v)
+    if method == "tinted":
+        colours = slice_colours(lut, n, z_step, d_range)
+        vals, idx, rgb = _coded_tinted(v, lo, hi, colours, gamma, progress)
+        depth = idx.astype(np.float32)
+        del idx
+        depth *= np.float32(z_step)
+        depth[~(vals > lo)] = np.nan
+        brightness = _brightness(vals, lo, hi, gamma)
+    else:
+        reduce = _coded_brightest if method == "brightest" else _coded_weighted
+        vals, depth = reduce(v, lo, hi, z_step, progress)
+        brightness = _brightness(vals, lo, hi, gamma)
+        del vals
+        rgb = _colourize(depth, brightness, d_range, lut)
+    return DepthCodedProjection(
+        rgb=rgb, depth_um=depth, brightness=brightness, depth_range=d_range, lut=lut,
+        clim=(lo, hi), method=method, gamma=gamma, z_step=z_step,
+    )
+
+
+# --- blended (emission-absorption) projection ------------------------------------
+
+def blend_table(kdtype: np.dtype, lo: float, hi: float, kappa: float) -> np.ndarray:
+    """Per-integer-value ``(a * u, 1 - a)`` for uint8/uint16 input (float64)."""
+    x = np.arange(2 ** (8 * kdtype.itemsize), dtype=np.float64)
+    u = np.clip((x - lo) / (hi - lo), 0.0, 1.0)
+    table = np.empty((x.size, 2), np.float64)
+    table[:, 0] = -np.expm1(-kappa * u) * u
+    table[:, 1] = np.exp(-kappa * u)
+    return table
+
+
+def _blend_fold(v: Any, lo: float, hi: float, kappa: float, reverse: bool,
+                colours: Optional[np.ndarray], progress: Progress) -> np.ndarray:
+    """Composited colour (float64) over all chunks; planar RGB if *colours*."""
+    others = v.shape[1:]
+    kdtype = kernel_dtype(v.dtype)
+    rgb_shape = others[:-2] + (3,) + others[-2:]
+    colour = np.zeros(others if colours is None else rgb_shape, np.float64)
+    trans = np.ones(others, np.float64)
+    table = blend_table(kdtype, lo, hi, kappa) if kdtype.kind == "u" else None
+    scale = 1.0 / (hi - lo)
+
+    def fold(block: np.ndarray, z0: int, index: tuple) -> None:
+        c, t = colour[index], trans[index]
+        if colours is None and table is not None:
+            nb.blend_update_lut(block, table, 0, reverse, c, t)
+        elif colours is None:
+            nb.blend_update_float(block, lo, scale, kappa, reverse, c, t)
+        elif table is not None:
+            nb.blend_rgb_update_lut(block, z0, table, 0, reverse, colours, c, t)
+        else:
+            nb.blend_rgb_update_float(block, z0, lo, scale, kappa, reverse, colours, c, t)
+
+    with _KERNEL_LOCK:
+        fold_chunks(v, fold, reverse=reverse, progress=progress)
+    return colour
+
+
+def blended_projection(
+    stack: Any,
+    *,
+    z_step: float = 1.0,
+    density: Optional[float] = None,
+    clim: Optional[tuple[float, float]] = None,
+    view: str = "top",
+    cmap: Any = None,
+    axis: int = 0,
+    progress: Progress = None,
+) -> np.ndarray:
+    """Emission-absorption projection: bright structures hide what lies behind.
+
+    Each voxel emits its normalised intensity ``u = clip((I - lo) / (hi -
+    lo), 0, 1)`` and absorbs with extinction ``density * u`` per µm. A slice
+    of thickness *z_step* then has opacity ``a = 1 - exp(-density * u *
+    z_step)`` and colour u, composited front to back: ``C += T * a * u``,
+    ``T *= 1 - a``. A homogeneous slab of value u and thickness L gives
+    exactly ``u * (1 - exp(-density * u * L))`` whatever the number of slices.
+
+    Parameters
+    ----------
+    stack : array_like or dask array
+        Stack with at least 3 dimensions; integer, boolean or floating point.
+        NaN counts as no signal. Not modified.
+    z_step : float, optional
+        Slice thickness in µm (> 0).
+    density : float, optional
+        Extinction per µm of a fully bright voxel (>= 0). Default ``None``:
+        ``DEFAULT_OPTICAL_DEPTH / (n * z_step)`` = 10 / stack depth, i.e. a
+        fully bright column through the whole stack would let through e^-10
+        of the light behind it, and a fully bright structure one tenth of
+        the stack deep is 63 % opaque (1 - 1/e). Small densities approach a
+        (squared-intensity) sum projection; large ones show only the first
+        bright structure met from the viewing side.
+    clim : (float, float), optional
+        (lo, hi) display limits; default the 0.1 and 99.9 percentiles,
+        estimated from a strided subsample of the stack.
+    view : {"top", "bottom"}, optional
+        Composite from slice 0 ("top") or from the last slice ("bottom").
+    cmap : str, Colormap or (N, 3) array, optional
+        When given, each slice emits ``u * colour(depth)`` (depth from the
+        first to the last slice through the colour table, as in
+        :func:`depth_coded_projection`) and the result is RGB.
+    axis : int, optional
+        The depth axis (default 0); other axes are kept.
+    progress : callable, optional
+        ``progress(done, total)`` between z-chunks; may raise Cancelled.
+
+    Returns
+    -------
+    ndarray of float32
+        The composited image in [0, 1], the stack's shape without *axis*;
+        with *cmap*, an extra last axis of 3 (RGB).
+
+    Raises
+    ------
+    ParameterError
+        For a bad stack, z_step <= 0, density < 0, clim with hi <= lo, an
+        unknown view or colour table.
+
+    Notes
+    -----
+    The result is a rendering, not a measurement: the "absorption" is a
+    display device derived from the signal itself, not the sample's real
+    attenuation. 8- and 16-bit input goes through a table of (a * u, 1 - a)
+    per input value.
+
+    References
+    ----------
+    .. [1] N. Max, "Optical models for direct volume rendering", IEEE TVCG
+       1(2):99-108, 1995, doi:10.1109/2945.468400.
+    .. [2] T. Porter, T. Duff, "Compositing digital images", Computer
+       Graphics 18(3):253-259, 1984, doi:10.1145/964965.808606.
+    .. [3] M. Levoy, "Display of surfaces from volume data", IEEE CG&A
+       8(3):29-37, 1988, doi:10.1109/38.511.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> slab = np.full((4, 1, 1), 1.0)
+    >>> out = blended_projection(slab, z_step=0.5, density=1.0, clim=(0, 1))
+    >>> bool(np.isclose(out[0, 0], 1 - np.exp(-2.0)))
+    True
+    """
+    v, n = _depth_view(stack, axis)
+    z_step = check_number(z_step, name="z_step", low=0.0, low_open=True)
+    if density is None:
+        density = DEFAULT_OPTICAL_DEPTH / (n * z_step)
+    density = check_number(density, name="density", low=0.0)
+    view = check_choice(view, name="view", choices=VIEWS)
+    lut = None if cmap is None else resolve_lut(cmap)
+    lo, hi = _resolve_clim(clim, v)
+    colours = None
+    if lut is not None:
+        colours = slice_colours(lut, n, z_step, _resolve_depth_range(None, n, z_step))
+    colour = _blend_fold(v, lo, hi, density * z_step, view == "bottom", colours, progress)
+    if colours is not None:
+        colour = np.moveaxis(colour, -3, -1)
+    return np.ascontiguousarray(colour, dtype=np.float32)
+
+
+# --- compile ahead -----------------------------------------------------------
+
+def warm_up() -> None:
+    """Compile (or load from numba's disk cache) the kernels for common dtypes.
+
+    Runs every projection on tiny uint8, uint16 and float32 stacks. Takes
+    tens of seconds the very first time on a machine and well under a second
+    once cached; widgets call it in a background thread at start-up.
+
+    Returns
+    -------
+    None
+
+    Raises
+    ------
+    None
+
+    References
+    ----------
+    .. [1] numba documentation, "Cache compiled functions" (``cache=True``).
+
+    Examples
+    --------
+    >>> warm_up()
+    """
+    for dtype in (np.uint8, np.uint16, np.float32):
+        tiny = np.zeros((3, 4, 8), dtype)
+        tiny[1, 1, 1] = 1
+        brightest_point(tiny)
+        for method in METHODS:
+            depth_coded_projection(tiny, method=method, clim=(0, 1))
+        blended_projection(tiny, clim=(0, 1))
+        blended_projection(tiny, clim=(0, 1), cmap="viridis")

@@ -1,0 +1,254 @@
+"""Compiled inner loops of the projections (numba, CPU, parallel over rows).
+
+Every ``*_update`` kernel is the fused *chunk + combine* step of a
+chunk -> combine -> aggregate reduction: it folds one z-chunk ``block`` of
+shape ``(nz, rows, cols)`` into per-pixel state arrays of shape
+``(rows, cols)`` that already hold the partial result of the chunks before
+it. Folding a chunk into a freshly initialised state is exactly the *chunk*
+step; the pure-numpy *combine* functions in :mod:`._proj_combine` merge two
+such partial results and are what the tests check for associativity.
+
+Conventions shared by all kernels
+
+* ``block`` is C-contiguous and of dtype uint8, uint16, float32 or float64
+  (the driver converts anything else chunk by chunk).
+* ``z0`` is the global index of ``block[0]`` (the chunk's offset).
+* Normalised intensity ``u = clip((x - lo) * scale, 0, 1)``; NaN gives 0.
+* Rows are processed in parallel (``prange``); the inner loop runs over the
+  contiguous last axis and is written without branches so LLVM vectorises it.
+
+Nothing here validates input: the public functions in :mod:`.projections` do.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit, prange
+
+__all__ = [
+    "brightest_update",
+    "weighted_update",
+    "tinted_update",
+    "blend_update_lut",
+    "blend_update_float",
+    "blend_rgb_update_lut",
+    "blend_rgb_update_float",
+    "colour_from_depth",
+]
+
+_OPTS = dict(parallel=True, cache=True, nogil=True)
+
+
+@njit(**_OPTS)
+def brightest_update(block, z0, vals, idx):
+    """Fold *block* into (maximum, index of first maximum); NaN is skipped.
+
+    State: ``vals`` (block dtype; anything where ``idx < 0``) and ``idx``
+    (int32, -1 = no number seen yet). Ties keep the earlier index.
+    """
+    nz, nr, nc = block.shape
+    for r in prange(nr):
+        v = vals[r]
+        ix = idx[r]
+        for z in range(nz):
+            row = block[z, r]
+            zz = np.int32(z0 + z)
+            for c in range(nc):
+                x = row[c]
+                cur = v[c]
+                i = ix[c]
+                take = (x > cur) | ((i < 0) & (x == x))
+                v[c] = x if take else cur
+                ix[c] = zz if take else i
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _normalise_row(row, lo, scale, out):
+    """out = clip((row - lo) * scale, 0, 1) in float32; NaN -> 0."""
+    lo32 = np.float32(lo)
+    sc32 = np.float32(scale)
+    for c in range(row.shape[0]):
+        u = (np.float32(row[c]) - lo32) * sc32
+        u = u if u > np.float32(0.0) else np.float32(0.0)
+        out[c] = u if u < np.float32(1.0) else np.float32(1.0)
+
+
+@njit(**_OPTS)
+def weighted_update(block, z0, lo, scale, vals, sum_u, sum_uz):
+    """Fold *block* into (max, sum of u, sum of u * z); u in float32, sums float64.
+
+    ``vals`` starts at the dtype's minimum for integers and NaN for floats.
+    Each row is swept in short separate loops so that each one vectorises.
+    """
+    nz, nr, nc = block.shape
+    for r in prange(nr):
+        v = vals[r]
+        su = sum_u[r]
+        suz = sum_uz[r]
+        ub = np.empty(nc, np.float32)
+        for z in range(nz):
+            row = block[z, r]
+            zf = np.float64(z0 + z)
+            for c in range(nc):
+                x = row[c]
+                cur = v[c]
+                v[c] = x if (x > cur) | (cur != cur) else cur
+            _normalise_row(row, lo, scale, ub)
+            for c in range(nc):
+                su[c] += ub[c]
+                suz[c] += ub[c] * zf
+
+
+@njit(**_OPTS)
+def tinted_update(block, z0, lo, scale, colours, vals, idx, tint):
+    """Fold *block* into (max, argmax, channel-wise max of colour * u).
+
+    ``colours[z]`` is the (already gamma-adjusted) colour of global slice z;
+    ``tint`` is planar, shape (3, rows, cols), float32.
+    """
+    nz, nr, nc = block.shape
+    for r in prange(nr):
+        v = vals[r]
+        ix = idx[r]
+        ub = np.empty(nc, np.float32)
+        for z in range(nz):
+            row = block[z, r]
+            zz = np.int32(z0 + z)
+            for c in range(nc):
+                x = row[c]
+                cur = v[c]
+                i = ix[c]
+                take = (x > cur) | ((i < 0) & (x == x))
+                v[c] = x if take else cur
+                ix[c] = zz if take else i
+            _normalise_row(row, lo, scale, ub)
+            for k in range(3):
+                t = tint[k, r]
+                ck = np.float32(colours[z0 + z, k])
+                for c in range(nc):
+                    t[c] = max(t[c], ck * ub[c])
+
+
+@njit(**_OPTS)
+def blend_update_lut(block, table, offset, reverse, colour, trans):
+    """Front-to-back compositing of an integer *block* through a table.
+
+    ``table[x + offset] = (a * u, 1 - a)`` for every integer value x.
+    *reverse* composites from the last slice of the block to the first.
+    """
+    nz, nr, nc = block.shape
+    for r in prange(nr):
+        col = colour[r]
+        tr = trans[r]
+        emit = np.empty(nc, np.float64)
+        keep = np.empty(nc, np.float64)
+        for k in range(nz):
+            z = nz - 1 - k if reverse else k
+            row = block[z, r]
+            for c in range(nc):
+                j = np.int64(row[c]) + offset
+                emit[c] = table[j, 0]
+                keep[c] = table[j, 1]
+            for c in range(nc):
+                col[c] += tr[c] * emit[c]
+            for c in range(nc):
+                tr[c] *= keep[c]
+
+
+@njit(**_OPTS)
+def blend_update_float(block, lo, scale, kappa, reverse, colour, trans):
+    """Front-to-back compositing of a floating-point *block* (exact exp)."""
+    nz, nr, nc = block.shape
+    for r in prange(nr):
+        col = colour[r]
+        tr = trans[r]
+        for k in range(nz):
+            z = nz - 1 - k if reverse else k
+            row = block[z, r]
+            for c in range(nc):
+                u = (np.float64(row[c]) - lo) * scale
+                u = u if u > 0.0 else 0.0
+                u = u if u < 1.0 else 1.0
+                t = tr[c]
+                keep = np.exp(-kappa * u)
+                col[c] += t * (1.0 - keep) * u
+                tr[c] = t * keep
+
+
+@njit(**_OPTS)
+def blend_rgb_update_lut(block, z0, table, offset, reverse, colours, colour, trans):
+    """As :func:`blend_update_lut`, emitting ``u * colours[z]``; planar RGB state (3, rows, cols)."""
+    nz, nr, nc = block.shape
+    for r in prange(nr):
+        tr = trans[r]
+        emit = np.empty(nc, np.float64)
+        keep = np.empty(nc, np.float64)
+        for k in range(nz):
+            z = nz - 1 - k if reverse else k
+            row = block[z, r]
+            for c in range(nc):
+                j = np.int64(row[c]) + offset
+                emit[c] = table[j, 0] * tr[c]
+                keep[c] = table[j, 1]
+            for q in range(3):
+                col = colour[q, r]
+                cq = colours[z0 + z, q]
+                for c in range(nc):
+                    col[c] += emit[c] * cq
+            for c in range(nc):
+                tr[c] *= keep[c]
+
+
+@njit(**_OPTS)
+def blend_rgb_update_float(block, z0, lo, scale, kappa, reverse, colours, colour, trans):
+    """As :func:`blend_update_float`, emitting ``u * colours[z]``; planar RGB state (3, rows, cols)."""
+    nz, nr, nc = block.shape
+    for r in prange(nr):
+        k0 = colour[0, r]
+        k1 = colour[1, r]
+        k2 = colour[2, r]
+        tr = trans[r]
+        for k in range(nz):
+            z = nz - 1 - k if reverse else k
+            row = block[z, r]
+            c0 = colours[z0 + z, 0]
+            c1 = colours[z0 + z, 1]
+            c2 = colours[z0 + z, 2]
+            for c in range(nc):
+                u = (np.float64(row[c]) - lo) * scale
+                u = u if u > 0.0 else 0.0
+                u = u if u < 1.0 else 1.0
+                t = tr[c]
+                keep = np.exp(-kappa * u)
+                e = t * (1.0 - keep) * u
+                k0[c] += e * c0
+                k1[c] += e * c1
+                k2[c] += e * c2
+                tr[c] = t * keep
+
+
+@njit(**_OPTS)
+def colour_from_depth(depth_um, bright, d0, span, lut, rgb):
+    """rgb = lut[index(depth)] * bright for 2-D (rows, cols) inputs.
+
+    ``index = clip(floor(t * N), 0, N - 1)`` with ``t = (depth - d0) / span``
+    clipped to [0, 1] -- the rule of matplotlib's ``Colormap.__call__``.
+    NaN depth gives black.
+    """
+    nr, nc = depth_um.shape
+    n = lut.shape[0]
+    for r in prange(nr):
+        for c in range(nc):
+            d = np.float64(depth_um[r, c])
+            b = bright[r, c]
+            if d != d:
+                rgb[r, c, 0] = 0.0
+                rgb[r, c, 1] = 0.0
+                rgb[r, c, 2] = 0.0
+                continue
+            t = (d - d0) / span
+            t = min(max(t, 0.0), 1.0)
+            j = min(int(t * n), n - 1)
+            rgb[r, c, 0] = lut[j, 0] * b
+            rgb[r, c, 1] = lut[j, 1] * b
+            rgb[r, c, 2] = lut[j, 2] * b
