@@ -30,6 +30,7 @@ from .kernels._validate import check_number, fail
 __all__ = [
     "FigureFiles",
     "LegendParts",
+    "build_depth_figure",
     "colour_bar_image",
     "export_depth_figure",
     "legend_parts",
@@ -128,7 +129,9 @@ def legend_parts(legend: Any) -> LegendParts:
 
 
 def nice_length(span: float, *, fraction: float = 0.2) -> float:
-    """A 1-2-5 length close to *fraction* of *span* (for scale bars).
+    """The longest 1-2-5 length (1, 2, 5 times a power of ten) not above *fraction* of *span*.
+
+    Used for scale bars (a bar of at most a fifth of the width: common practice).
 
     Examples
     --------
@@ -282,12 +285,63 @@ def _draw_colour_bar(ax: Any, parts: LegendParts, *, vertical: bool, colour: str
         spine.set_edgecolor(colour)
 
 
-def _render_figure(rgb: np.ndarray, parts: LegendParts, *, pixel: tuple[float, float],
-                   scale_bar_um: float, title: str | None, dpi: int) -> Any:
+def build_depth_figure(result: Any, *, pixel_size_um: float | Sequence[float],
+                       scale_bar_um: float | None = None, title: str | None = None,
+                       dpi: int = 300) -> Any:
+    """The figure of a depth-coded projection: image, scale bar and depth colour bar (µm).
+
+    Parameters
+    ----------
+    result : object
+        A ``depth_coded_projection`` result with a 2-D ``rgb`` (y, x, 3).
+    pixel_size_um : float or (float, float)
+        Pixel size (y, x) in µm.
+    scale_bar_um : float, optional
+        Scale bar length; default :func:`nice_length` of the image width.
+    title : str, optional
+        Title above the image.
+    dpi : int
+        Resolution.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        Not attached to pyplot; ``fig.axes[0]`` is the image (in µm), ``fig.axes[1]`` the colour bar.
+
+    Raises
+    ------
+    ParameterError
+        For a result that is not one RGB image, a bad pixel size or scale bar.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from viewer_plugin.kernels.projections import depth_coded_projection
+    >>> stack = np.zeros((5, 20, 30), np.uint8); stack[3, 5:9, 5:25] = 200
+    >>> fig = build_depth_figure(depth_coded_projection(stack, z_step=2.0), pixel_size_um=0.5)
+    >>> fig.axes[1].get_ylabel()
+    'Depth (µm)'
+    """
+    return _build_figure(result, pixel_size_um=pixel_size_um, scale_bar_um=scale_bar_um,
+                         title=title, dpi=dpi)[0]
+
+
+def _build_figure(result: Any, *, pixel_size_um: Any, scale_bar_um: float | None,
+                  title: str | None, dpi: int) -> tuple[Any, LegendParts, tuple[float, float], float]:
     from matplotlib.figure import Figure
 
+    from .kernels.projections import depth_legend
+
+    rgb = _figure_rgb(result)
+    pixel = _pixel_pair(pixel_size_um)
+    dpi = int(check_number(dpi, name="dpi", low=30, high=2400))
     ny, nx = rgb.shape[:2]
     height_um, width_um = ny * pixel[0], nx * pixel[1]
+    if scale_bar_um is None:
+        scale_bar_um = nice_length(width_um)
+    scale_bar_um = check_number(scale_bar_um, name="scale_bar_um", low=0.0, low_open=True,
+                                high=width_um)
+    parts = legend_parts(depth_legend(result))
     image_w = 5.0
     image_h = min(8.0, max(1.5, image_w * height_um / width_um))
     fig = Figure(figsize=(image_w + 1.3, image_h + (0.5 if title else 0.2)), dpi=dpi)
@@ -301,7 +355,7 @@ def _render_figure(rgb: np.ndarray, parts: LegendParts, *, pixel: tuple[float, f
     _draw_colour_bar(cax, parts, vertical=True)
     if title:
         fig.suptitle(title, fontsize=10, y=0.985)
-    return fig
+    return fig, parts, pixel, scale_bar_um
 
 
 def export_depth_figure(
@@ -364,26 +418,17 @@ def export_depth_figure(
     from matplotlib import rc_context
 
     from .commands._common import atomic_write_bytes, write_json
-    from .kernels.projections import depth_legend
 
     path, sidecar, methods, fmt = _check_targets(Path(path), overwrite=overwrite)
-    rgb = _figure_rgb(result)
-    pixel = _pixel_pair(pixel_size_um)
-    dpi = int(check_number(dpi, name="dpi", low=30, high=2400))
-    width_um = rgb.shape[1] * pixel[1]
-    if scale_bar_um is None:
-        scale_bar_um = nice_length(width_um)
-    scale_bar_um = check_number(scale_bar_um, name="scale_bar_um", low=0.0, low_open=True,
-                                high=width_um)
     params = dict(parameters or {})
     if params.get("clim_used") is None and getattr(result, "clim", None) is not None:
         params["clim_used"] = [float(v) for v in result.clim]
-    legend = depth_legend(result)
-    parts = legend_parts(legend)
-    text = methods_sentence(params, legend_range=parts.depth_range)
     with rc_context({"pdf.fonttype": 42, "ps.fonttype": 42, "svg.fonttype": "none"}):
-        fig = _render_figure(rgb, parts, pixel=pixel, scale_bar_um=scale_bar_um, title=title, dpi=dpi)
-        atomic_write_bytes(path, lambda tmp: fig.savefig(tmp, format=fmt, dpi=dpi,
+        fig, parts, pixel, scale_bar_um = _build_figure(
+            result, pixel_size_um=pixel_size_um, scale_bar_um=scale_bar_um, title=title, dpi=dpi)
+        rgb = _figure_rgb(result)
+        text = methods_sentence(params, legend_range=parts.depth_range)
+        atomic_write_bytes(path, lambda tmp: fig.savefig(tmp, format=fmt, dpi=fig.dpi,
                                                          facecolor="white"))
     record = {
         "figure": path.name,
