@@ -94,7 +94,10 @@ def two_pass_summary(
         hi_text = f"{hi:.3g}" if math.isfinite(hi) else "inf"
         length = f"attenuation length {length_um:.3g} µm (95 % CI {lo:.3g} to {hi_text} µm)"
     else:
-        length = "no attenuation with depth detected"
+        lo = length_interval[0]
+        bound = f" (95 % CI from {lo:.3g} µm up)" if math.isfinite(lo) else ""
+        length = ("attenuation length not determined: with bleaching removed, the forward "
+                  f"profile does not fall with depth{bound}")
     return (f"Two-pass estimate: bleaching {rate * 100:.2g} % per slice exposure{ci}, "
             f"which cost the forward pass {format_percent(fraction_lost)} of its signal by the "
             f"last slice; {length}.")

@@ -400,10 +400,10 @@ def estimate_bleaching(
     signal = raw - (levels if offset is None else level)
     if np.ptp(raw) == 0 and background.sigma == 0:
         return _constant_report(n, level, interval, tolerance, axis_kind)
-    head = float(np.mean(signal[: max(1, int(math.ceil(n / 10)))]))
+    head = float(np.max(signal))
     if not head > MIN_CONTRAST * background.sigma:
         fail("series", f"a foreground at least {MIN_CONTRAST} background standard deviations "
-             "above the background", f"<foreground {head:.4g} above a background of "
+             "above the background in some frame", f"<at most {head:.4g} above a background of "
              f"{level:.4g} (sd {background.sigma:.3g})>",
              hint="the series looks like background only; pass a mask or check the layer")
     return _fit_report(signal, interval=interval, tolerance=tolerance, axis_kind=axis_kind,
