@@ -102,21 +102,31 @@ def length_interval(fit: ExponentialFit, level: float = 0.95) -> tuple[float, fl
 def smooth_log_profile(
     depth: np.ndarray, signal: np.ndarray, sem: np.ndarray, *, bandwidth: float
 ) -> np.ndarray:
-    """Local linear regression of ``ln s`` with a Gaussian kernel of sd *bandwidth* (um).
+    """Smoothing of ``ln s``: local linear fits with a Gaussian kernel of sd *bandwidth*.
 
-    Precision weights are capped at 100 times their median so that a few
-    very bright slices do not pin the curve. Evaluated at every depth.
+    A LOWESS without robustness passes: a genuine feature at the ends of the
+    stack (a rise below the tissue surface) must be followed, not treated as
+    an outlier. Precision weights are capped at 100 times their median so
+    that a few very bright slices do not pin the curve. Evaluated at every depth.
     """
     weights = log_weights(signal, sem)
     ok = weights > 0
     z = depth[ok]
     y = np.log(signal[ok])
-    w = weights[ok]
-    w = np.minimum(w, 100.0 * np.median(w))
-    out = np.empty(depth.shape, dtype=np.float64)
-    for i, z0 in enumerate(depth):
+    w = np.minimum(weights[ok], 100.0 * np.median(weights[ok]))
+    return _local_linear(z, y, w, depth, bandwidth)
+
+
+def _local_linear(z: np.ndarray, y: np.ndarray, w: np.ndarray, at: np.ndarray,
+                  bandwidth: float) -> np.ndarray:
+    """Kernel-weighted local linear regression of y(z), evaluated at *at*."""
+    out = np.empty(at.shape, dtype=np.float64)
+    for i, z0 in enumerate(at):
         k = w * np.exp(-0.5 * ((z - z0) / bandwidth) ** 2)
         sk = k.sum()
+        if not sk > 0:
+            out[i] = np.nan
+            continue
         zbar = (k * z).sum() / sk
         ybar = (k * y).sum() / sk
         szz = (k * (z - zbar) ** 2).sum()

@@ -265,7 +265,9 @@ def estimate_attenuation(
         "smooth": local linear smoothing of ``ln profile`` (Gaussian kernel),
         for stacks that do not decay exponentially. "histogram": map each
         slice's histogram onto the first slice's (assumes every slice holds
-        similar content). *length_um* always comes from the exponential fit.
+        similar content). *length_um*, its interval and *r_squared* always
+        come from the exponential model's own select-and-fit loop, so they do
+        not depend on the model chosen.
     axis : int
         The depth axis (e.g. 2 for a light sheet entering from the side).
     mask : array_like of bool, optional
@@ -338,21 +340,25 @@ def estimate_attenuation(
     step = auto_step(moved.shape[1:]) if lateral_step is None else check_int(
         lateral_step, name="lateral_step", low=1)
     n_chunks = len(list(depth_chunks(moved.shape[0], plane_nbytes(moved.shape, moved.dtype))))
-    total = n_chunks + MAX_ITERATIONS + 1
+    total = n_chunks + (2 if model == "smooth" else 1) * MAX_ITERATIONS + 1
     sample, done = lateral_sample(moved, moved_mask(mask, stack.shape, axis), step, progress, total)
     _check_sample(stack, sample, mask)
     depth = np.arange(moved.shape[0], dtype=np.float64) * z_step
-    bandwidth = smoothing_um if smoothing_um is not None else max(depth[-1] / 10.0, z_step)
     background = measure_background(sample)
     above = sample - background.level[:, None].astype(np.float32)
-    fg, gain, curve, n_iter, converged = _iterate(above, background.sigma, depth, model, bandwidth,
-                                                       progress, done, total)
-    _check_structure(fg, background.sigma)
+    loop = _iterate(above, background.sigma, depth, "exponential", 0.0, progress, done, total)
+    _check_structure(loop[0], background.sigma)
+    fg, gain, curve, n_iter, converged = loop
     exp_fit = models.fit_exponential(depth, fg.signal, fg.sem)
     length = models.length_from_rate(exp_fit.rate)
     interval = models.length_interval(exp_fit)
-    if model != "smooth":
-        curve = np.exp(exp_fit.intercept - exp_fit.rate * depth)
+    curve = np.exp(exp_fit.intercept - exp_fit.rate * depth)
+    if model == "smooth":
+        bandwidth = smoothing_um if smoothing_um is not None else max(depth[-1] / 10.0, z_step)
+        fg, gain, curve, n_smooth, smooth_converged = _iterate(
+            above, background.sigma, depth, "smooth", bandwidth, progress, done + MAX_ITERATIONS, total)
+        n_iter += n_smooth
+        converged = converged and smooth_converged
     if offset is None:
         offset = models.estimate_offset(background.level, curve, float(np.nanmin(sample)))
     maps = None
