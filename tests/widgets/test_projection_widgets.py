@@ -98,7 +98,8 @@ def test_depth_colour_preview_is_downsampled(make_napari_viewer, qtbot):
     assert preview.data.shape == (10, 12, 3)  # every 4th pixel of 40 x 48
     np.testing.assert_allclose(preview.scale, (2.0, 2.0))
     np.testing.assert_allclose(preview.translate, layer.translate[1:])
-    assert widget.legend.image_data is not None  # the colour bar in the dock
+    assert widget.legend_image is not None and widget.legend_image.shape[-1] == 4  # dock colour bar
+    assert not widget.legend.native.pixmap().isNull()
     _run(qtbot, widget)
     assert "cells depth colour (preview)" not in viewer.layers  # replaced by the full result
 

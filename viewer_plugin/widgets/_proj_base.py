@@ -144,6 +144,9 @@ class ProjectionWidget(Container):
         self.cancel_button = PushButton(text="Cancel", enabled=False)
         self.status = Label(value="")
         self.extend([self.compute_button, self.cancel_button, self.status])
+        for widget in self:
+            if isinstance(widget, Label):  # long messages wrap instead of widening the dock
+                widget.native.setWordWrap(True)
         self.compute_button.changed.connect(self.compute)
         self.cancel_button.changed.connect(self.task.cancel)
         self.task.started.append(self._on_started)
@@ -266,7 +269,7 @@ class ProjectionWidget(Container):
         if self.override_z.value:
             self.z_hint.value = f"layer scale along depth: {step:g} ({unit})"
         elif unit in ("pixel", "px") and step == 1.0:
-            self.z_hint.value = ("z-step 1 from a layer without physical units:\n"
+            self.z_hint.value = ("z-step 1 from a layer without physical units: "
                                  "check the voxel size and override if needed")
         else:
             self.z_hint.value = ""

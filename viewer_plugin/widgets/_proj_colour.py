@@ -7,7 +7,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any, Callable
 
 import numpy as np
-from magicgui.widgets import CheckBox, ComboBox, FloatSlider, FloatSpinBox, Image, Label, PushButton
+from magicgui.widgets import CheckBox, ComboBox, FloatSlider, FloatSpinBox, Label, PushButton
 
 from ._proj_base import ProjectionWidget, downsampled, geometry_without, layer_data, preview_step
 
@@ -32,8 +32,8 @@ METHODS = (
     ("tinted: slices tinted by depth, then maximum", "tinted"),
 )
 
-CAVEAT = ("Colour = depth below the first slice; brightness = display\n"
-          "contrast, relative and not calibrated.")
+CAVEAT = ("Colour = depth below the first slice; brightness = display contrast, "
+          "relative and not calibrated.")
 
 #: Milliseconds without a parameter change before a preview starts.
 PREVIEW_DELAY_MS = 300
@@ -82,7 +82,8 @@ class DepthColourWidget(ProjectionWidget):
         self.clim_label = Label(value="")
         self.gamma = FloatSlider(label="Gamma", value=1.0, min=0.2, max=3.0, step=0.05)
         self.live = CheckBox(text="Live preview (downsampled)", value=True)
-        self.legend = Image()
+        self.legend = Label(value="")  # shows the colour bar as a pixmap
+        self.legend_image: np.ndarray | None = None
         self.legend_label = Label(value="")
         self.export_button = PushButton(text="Export figure\u2026", enabled=False)
         self.caveat = Label(value=CAVEAT)
@@ -178,7 +179,13 @@ class DepthColourWidget(ProjectionWidget):
     def _draw_legend(self, legend: Any) -> None:
         from ..figures import colour_bar_image
 
-        self.legend.set_data(colour_bar_image(legend, width_px=280, height_px=58))
+        from qtpy.QtGui import QImage, QPixmap
+
+        image = np.ascontiguousarray(colour_bar_image(legend, width_px=300, height_px=60))
+        self.legend_image = image
+        height, width = image.shape[:2]
+        qimage = QImage(image.data, width, height, 4 * width, QImage.Format.Format_RGBA8888)
+        self.legend.native.setPixmap(QPixmap.fromImage(qimage.copy()))
         self.legend_label.value = "Depth colour bar (\u00b5m below the first slice)"
 
     # ----------------------------------------------------------- preview

@@ -42,7 +42,7 @@ class BrightestPointWidget(ProjectionWidget):
             text="Blank depth where max \u2264 lower contrast limit", value=False,
             tooltip="Pixels whose maximum is at or below the layer's lower contrast limit get no "
                     "depth (NaN): their 'depth' would only be the depth of the brightest noise")
-        self.note = Label(value="Depth is measured from the first slice (0 \u00b5m);\n"
+        self.note = Label(value="Depth is measured from the first slice (0 \u00b5m); "
                                 "ties go to the shallowest slice.")
         self.extend([self.depth_cmap, self.hide_background, self.note])
 
@@ -107,7 +107,7 @@ class BlendedWidget(ProjectionWidget):
             (f"depth ({name})", name) for name in DEPTH_MAP_COLOURS[:5]], value=None,
             tooltip="Grey, or each slice emits the colour of its depth (top view only)")
         self.side_views = CheckBox(text="Side views along y and along x", value=False)
-        self.note = Label(value="A rendering for looking, not for measuring:\n"
+        self.note = Label(value="A rendering for looking, not for measuring: "
                                 "blended brightness is not an intensity.")
         self.extend([self.auto_density, self.density, self.view, self.auto_contrast,
                      self.colour, self.side_views, self.note])

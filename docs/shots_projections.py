@@ -1,0 +1,119 @@
+"""Screenshots of the three projection widgets on the synthetic demo (run under Xvfb).
+
+    xvfb-run -a python docs/shots_projections.py
+
+Writes docs/images/projection_depth_colour.png (the depth colour widget and its RGB result),
+projection_brightest_point.png (maximum and depth map in µm with napari's colour bar),
+projection_blended.png (blended top view with the two side views below it) and
+projection_figure.png (the figure "Export figure…" saves for a paper). Open them and look at
+them before committing.
+"""
+
+from __future__ import annotations
+
+import os
+import shutil
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+os.environ.setdefault("NAPARI_CONFIG", os.path.join(tempfile.mkdtemp(), "settings.yaml"))
+
+IMAGES = Path(__file__).resolve().parent / "images"
+
+
+def settle(app, seconds: float = 0.5) -> None:
+    end = time.monotonic() + seconds
+    while time.monotonic() < end:
+        app.processEvents()
+        time.sleep(0.02)
+
+
+def wait(app, worker, widget, timeout: float = 300.0) -> None:
+    """Start *worker* and process events until the widget's task has finished."""
+    worker.start()
+    start = time.monotonic()
+    while widget.task.running and time.monotonic() - start < timeout:
+        app.processEvents()
+        time.sleep(0.02)
+    settle(app)
+
+
+def only_visible(viewer, *names: str) -> None:
+    for layer in viewer.layers:
+        layer.visible = layer.name in names
+
+
+def dock(viewer, widget, name: str) -> None:
+    viewer.window.remove_dock_widget("all")
+    viewer.window.add_dock_widget(widget, name=name, area="right")
+
+
+def main() -> int:
+    import napari
+    from qtpy.QtWidgets import QApplication
+
+    from viewer_plugin import demo
+    from viewer_plugin.figures import export_depth_figure
+    from viewer_plugin.kernels.projections import warm_up
+    from viewer_plugin.samples import demo_layer
+    from viewer_plugin.widgets.projection import (
+        BlendedWidget,
+        BrightestPointWidget,
+        DepthColourWidget,
+    )
+
+    IMAGES.mkdir(exist_ok=True)
+    warm_up()
+    viewer = napari.Viewer(show=True)
+    viewer.window.resize(1500, 1000)
+    app = QApplication.instance()
+    slab = demo.fibre_slab()
+    data, kwargs, _ = demo_layer(slab)
+    source = viewer.add_image(data, **kwargs)
+    name = source.name
+
+    colour = DepthColourWidget(viewer)
+    dock(viewer, colour, "Depth colour projection")
+    wait(app, colour.compute(start_thread=False), colour)
+    colour.live.value = False  # the next shots change the source's contrast: no preview then
+    only_visible(viewer, f"{name} depth colour")
+    viewer.reset_view()
+    settle(app)
+    viewer.screenshot(str(IMAGES / "projection_depth_colour.png"), canvas_only=False)
+
+    brightest = BrightestPointWidget(viewer)
+    source.contrast_limits = (150.0, source.contrast_limits[1])  # above the demo's background
+    brightest.hide_background.value = True
+    dock(viewer, brightest, "Brightest-point projection")
+    wait(app, brightest.compute(start_thread=False), brightest)
+    only_visible(viewer, f"{name} depth of max (\u00b5m)")
+    settle(app)
+    viewer.screenshot(str(IMAGES / "projection_brightest_point.png"), canvas_only=False)
+
+    blended = BlendedWidget(viewer)
+    blended.side_views.value = True
+    dock(viewer, blended, "Blended projection")
+    wait(app, blended.compute(start_thread=False), blended)
+    only_visible(viewer, f"{name} blended (top)", f"{name} blended side (along y)",
+                 f"{name} blended side (along x)")
+    viewer.reset_view()
+    settle(app)
+    viewer.screenshot(str(IMAGES / "projection_blended.png"), canvas_only=False)
+    viewer.close()
+
+    # the figure "Export figure..." saves, from the same result and parameters
+    with tempfile.TemporaryDirectory() as tmp:
+        info = colour.result_info
+        files = export_depth_figure(colour.result, Path(tmp) / "figure.png",
+                                    pixel_size_um=tuple(info["voxel_size_um"][1:]),
+                                    title="Fibre slab (synthetic demo), depth colour-coded",
+                                    source_name=info["source_layer"], parameters=info)
+        shutil.copyfile(files.figure, IMAGES / "projection_figure.png")
+        print(files.methods_text)
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
