@@ -21,6 +21,10 @@ TWO_PASS_CAVEAT = (
 )
 
 
+#: R² below which the summary says that the decay model fits poorly.
+POOR_FIT = 0.8
+
+
 def format_percent(fraction: float) -> str:
     """``0.2634 -> '26 %'``; one decimal below 10 %."""
     value = abs(fraction) * 100
@@ -56,21 +60,32 @@ def bleaching_summary(
     tolerance: float,
     axis_kind: str,
     significant: bool,
+    r_squared: float = math.nan,
 ) -> str:
     """One sentence: how much the signal changed, how fast, and the verdict."""
     noun = "time points" if axis_kind == "time" else "slices"
     limit = f"the {format_percent(tolerance)} tolerance"
     if not math.isfinite(fraction_lost):
         return f"The signal over {n_frames} {noun} could not be modelled; no verdict."
-    if fraction_lost <= 0 or not significant:
-        direction = "rose" if fraction_lost < 0 else "changed"
+    direction = "fell" if fraction_lost > 0 else "rose"
+    if not significant and abs(fraction_lost) <= tolerance:
         sentence = (f"No significant fading: the signal {direction} by "
                     f"{format_percent(fraction_lost)} over {n_frames} {noun}; "
                     f"this is within {limit}")
+    elif not significant:
+        sentence = (f"No clear trend: the model {direction} by {format_percent(fraction_lost)} "
+                    f"over {n_frames} {noun}, but that is not significant (its 95 % interval "
+                    f"includes no change); no verdict against {limit}")
+    elif fraction_lost <= 0:
+        sentence = (f"Signal rose by {format_percent(fraction_lost)} over {n_frames} {noun}: "
+                    f"no fading; this is within {limit}")
     else:
         verdict = "this exceeds" if fraction_lost > tolerance else "this is within"
         sentence = (f"Signal fell by {format_percent(fraction_lost)} over {n_frames} {noun}"
                     f"{_half_text(half_life, axis_kind)}; {verdict} {limit}")
+    if math.isfinite(r_squared) and r_squared < POOR_FIT:
+        sentence += (f" (the decay model fits poorly, R\u00b2 = {r_squared:.2f}, so the numbers "
+                     "are rough)")
     if axis_kind == "depth":
         sentence += ", but one z-stack cannot tell bleaching from depth attenuation"
     return sentence + "."

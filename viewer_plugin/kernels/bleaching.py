@@ -282,7 +282,8 @@ def _fit_report(signal: np.ndarray, *, interval: float, tolerance: float, axis_k
         caveat=DEPTH_CAVEAT if axis_kind == "depth" else "",
         summary=bleaching_summary(fraction_lost=lost, half_life=half, n_frames=n,
                                   tolerance=tolerance, axis_kind=axis_kind,
-                                  significant=significant or exceeds),
+                                  significant=significant or exceeds,
+                                  r_squared=_r_squared(signal, best.rss)),
     )
 
 
