@@ -54,6 +54,7 @@ def attenuation_figure(
     truth: Mapping[str, Any] | None = None,
     title: str | None = None,
     figure: Figure | None = None,
+    annotate: bool = True,
 ) -> Figure:
     """Draw the profile (points with standard errors), the model and the gain against depth.
 
@@ -71,6 +72,9 @@ def attenuation_figure(
         Figure title (e.g. the layer or file name).
     figure : matplotlib Figure, optional
         Draw into this figure (cleared first) instead of a new one.
+    annotate : bool
+        Write the length, r² and the demo truth inside the plot (the dock
+        widget shows them as text beside it instead).
 
     Returns
     -------
@@ -90,11 +94,13 @@ def attenuation_figure(
         top.set_yscale("log")
     top.set_ylabel("signal above background")
     top.legend(loc="upper right", fontsize="small", frameon=False)
-    lines = [length_text(fit), f"exponential fit r² = {fit.r_squared:.3f}"]
-    demo = truth_text(truth)
-    if demo:
-        lines.append(demo)
-    top.text(0.02, 0.04, "\n".join(lines), transform=top.transAxes, fontsize="small", va="bottom")
+    if annotate:
+        lines = [length_text(fit), f"exponential fit r² = {fit.r_squared:.3f}"]
+        demo = truth_text(truth)
+        if demo:
+            lines.append(demo)
+        top.text(0.02, 0.04, "\n".join(lines), transform=top.transAxes, fontsize="small",
+                 va="bottom")
     gain = np.where(np.isfinite(fit.gain), fit.gain, np.nan)
     shown = gain if max_gain is None else np.minimum(gain, max_gain)
     bottom.plot(depth, shown, color="tab:green", lw=2, label="gain")
@@ -105,8 +111,9 @@ def attenuation_figure(
     if max_gain is not None and math.isfinite(max_gain) and np.nanmax(gain) > max_gain:
         bottom.axhline(max_gain, color="tab:red", ls="--", lw=1, label=f"cap {max_gain:g}")
         bottom.legend(loc="upper left", fontsize="small", frameon=False)
-    bottom.text(0.02, 0.92, "gains above 1 amplify noise too; corrected values are relative",
-                transform=bottom.transAxes, fontsize="x-small", va="top", color="0.35")
+    if annotate:
+        bottom.text(0.02, 0.92, "gains above 1 amplify noise too; corrected values are relative",
+                    transform=bottom.transAxes, fontsize="x-small", va="top", color="0.35")
     bottom.set_xlabel("depth (µm)")
     bottom.axhline(1.0, color="0.6", lw=0.8)
     if title:

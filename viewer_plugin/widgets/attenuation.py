@@ -118,12 +118,14 @@ class AttenuationWidget(Container):
         self._add_canvas()
         self.native.layout().addWidget(self._caution.native)
         self._connect()
+        self.layer_combo.reset_choices()
+        self.mask_combo.reset_choices()
         self._on_layer(self.layer_combo.value)
 
     # ------------------------------------------------------------ building
     def _build(self) -> None:
         self.layer_combo = ComboBox(label="Image", choices=self._layer_choices)
-        self.axis_combo = ComboBox(label="Depth axis", choices=[("axis 0", 0)])
+        self.axis_combo = ComboBox(label="Depth axis", choices=self._axis_choices)
         self.z_step = FloatSpinBox(label="Z-step (µm)", value=1.0, min=0.0, max=1e6, step=0.1)
         self.z_step.tooltip = "Slice spacing along the depth axis; taken from the layer scale"
         self.model = ComboBox(label="Model", choices=list(MODELS), value="exponential")
@@ -150,9 +152,10 @@ class AttenuationWidget(Container):
         from matplotlib.backends.backend_qtagg import FigureCanvasQTAgg
         from matplotlib.figure import Figure
 
-        self.figure = Figure(figsize=(5.0, 3.8), dpi=90, layout="constrained")
+        self.figure = Figure(figsize=(4.4, 3.8), dpi=90, layout="constrained")
         self.canvas = FigureCanvasQTAgg(self.figure)
-        self.canvas.setMinimumHeight(300)
+        self.canvas.setMinimumHeight(320)
+        self.canvas.setMinimumWidth(360)
         self.native.layout().addWidget(self.canvas)
 
     def _connect(self) -> None:
@@ -172,6 +175,14 @@ class AttenuationWidget(Container):
 
     def _layer_choices(self, _widget: Any = None) -> list[tuple[str, Any]]:
         return [(layer.name, layer) for layer in image_layer_choices(self.viewer, min_ndim=3)]
+
+    def _axis_choices(self, _widget: Any = None) -> list[tuple[str, int]]:
+        layer = getattr(self, "layer_combo", None)
+        layer = None if layer is None else layer.value
+        if layer is None:
+            return [("axis 0", 0)]
+        labels = leading_axis_labels(layer)
+        return [(f"{labels[i]} (axis {i})", i) for i in range(layer.ndim)]
 
     def _mask_choices(self, _widget: Any = None) -> list[tuple[str, Any]]:
         from napari.layers import Labels, Shapes
@@ -199,8 +210,7 @@ class AttenuationWidget(Container):
     def _on_layer(self, layer: Any) -> None:
         if layer is None:
             return
-        labels = leading_axis_labels(layer)
-        self.axis_combo.choices = [(f"{labels[i]} (axis {i})", i) for i in range(layer.ndim)]
+        self.axis_combo.reset_choices()
         self.axis_combo.value = default_depth_axis(layer)
         self._sync_step()
         self.truth_label.value = self._truth_line(layer, None)
@@ -308,9 +318,11 @@ class AttenuationWidget(Container):
             out, caught = payload
             for message in caught:
                 show_warning(f"{self.title}: {message}")
+            extra = {key: tuple(getattr(layer, key)) for key in ("units", "axis_labels")
+                     if getattr(layer, key, None) is not None}
             self.viewer.add_image(
                 out, name=f"{layer.name} attenuation-corrected", colormap=layer.colormap.name,
-                blending=layer.blending, **same_geometry(layer),
+                blending=layer.blending, **same_geometry(layer), **extra,
                 metadata={"attenuation": {"length_um": fit.length_um, "model": fit.model,
                                           "max_gain": max_gain, "offset": fit.offset,
                                           "source": layer.name},
@@ -350,5 +362,6 @@ class AttenuationWidget(Container):
         max_gain = float(self.max_gain.value)
         attenuation_figure(self.fit_result, log_scale=bool(self.log_scale.value),
                            max_gain=max_gain if math.isfinite(max_gain) else None,
-                           truth=truth, title=getattr(layer, "name", None), figure=self.figure)
+                           truth=truth, title=getattr(layer, "name", None), figure=self.figure,
+                           annotate=False)
         self.canvas.draw_idle()
