@@ -43,8 +43,9 @@ _OPTS = dict(parallel=True, cache=True, nogil=True)
 def brightest_update(block, z0, vals, idx):
     """Fold *block* into (maximum, index of first maximum); NaN is skipped.
 
-    State: ``vals`` (block dtype; anything where ``idx < 0``) and ``idx``
-    (int32, -1 = no number seen yet). Ties keep the earlier index.
+    State: ``vals`` (block dtype; NaN for floats and the dtype's minimum for
+    integers at the start) and ``idx`` (int32, -1 = no number seen yet).
+    Ties keep the earlier index; ``fmax`` ignores NaN.
     """
     nz, nr, nc = block.shape
     for r in prange(nr):
@@ -58,8 +59,10 @@ def brightest_update(block, z0, vals, idx):
                 cur = v[c]
                 i = ix[c]
                 take = (x > cur) | ((i < 0) & (x == x))
-                v[c] = x if take else cur
-                ix[c] = zz if take else i
+                # branch-free blends: a conditional store would become a slow
+                # masked store (vmaskmov) once vectorised
+                v[c] = np.fmax(x, cur)
+                ix[c] = i ^ ((i ^ zz) & -np.int32(take))
 
 
 @njit(cache=True, nogil=True, inline="always")
@@ -73,11 +76,17 @@ def _normalise_row(row, lo, scale, out):
         out[c] = u if u < np.float32(1.0) else np.float32(1.0)
 
 
+#: Planes summed in float32 before the partial sums go into float64 state.
+_GROUP = 16
+
+
 @njit(**_OPTS)
 def weighted_update(block, z0, lo, scale, vals, sum_u, sum_uz):
-    """Fold *block* into (max, sum of u, sum of u * z); u in float32, sums float64.
+    """Fold *block* into (max, sum of u, sum of u * z).
 
     ``vals`` starts at the dtype's minimum for integers and NaN for floats.
+    u is float32; groups of up to 16 planes are summed in float32 (exact to
+    ~1e-6 relative) and then added to the float64 accumulators.
     Each row is swept in short separate loops so that each one vectorises.
     """
     nz, nr, nc = block.shape
@@ -86,17 +95,24 @@ def weighted_update(block, z0, lo, scale, vals, sum_u, sum_uz):
         su = sum_u[r]
         suz = sum_uz[r]
         ub = np.empty(nc, np.float32)
-        for z in range(nz):
-            row = block[z, r]
-            zf = np.float64(z0 + z)
+        gu = np.empty(nc, np.float32)
+        guz = np.empty(nc, np.float32)
+        for g0 in range(0, nz, _GROUP):
+            gu[:] = 0.0
+            guz[:] = 0.0
+            for z in range(g0, min(nz, g0 + _GROUP)):
+                row = block[z, r]
+                zf = np.float32(z - g0)
+                for c in range(nc):
+                    v[c] = np.fmax(row[c], v[c])
+                _normalise_row(row, lo, scale, ub)
+                for c in range(nc):
+                    gu[c] += ub[c]
+                    guz[c] += ub[c] * zf
+            base = np.float64(z0 + g0)
             for c in range(nc):
-                x = row[c]
-                cur = v[c]
-                v[c] = x if (x > cur) | (cur != cur) else cur
-            _normalise_row(row, lo, scale, ub)
-            for c in range(nc):
-                su[c] += ub[c]
-                suz[c] += ub[c] * zf
+                su[c] += gu[c]
+                suz[c] += guz[c] + base * gu[c]
 
 
 @njit(**_OPTS)
@@ -107,26 +123,33 @@ def tinted_update(block, z0, lo, scale, colours, vals, idx, tint):
     ``tint`` is planar, shape (3, rows, cols), float32.
     """
     nz, nr, nc = block.shape
+    lo32 = np.float32(lo)
+    sc32 = np.float32(scale)
     for r in prange(nr):
         v = vals[r]
         ix = idx[r]
-        ub = np.empty(nc, np.float32)
+        t0 = tint[0, r]
+        t1 = tint[1, r]
+        t2 = tint[2, r]
         for z in range(nz):
             row = block[z, r]
             zz = np.int32(z0 + z)
+            c0 = np.float32(colours[z0 + z, 0])
+            c1 = np.float32(colours[z0 + z, 1])
+            c2 = np.float32(colours[z0 + z, 2])
             for c in range(nc):
                 x = row[c]
                 cur = v[c]
                 i = ix[c]
                 take = (x > cur) | ((i < 0) & (x == x))
-                v[c] = x if take else cur
-                ix[c] = zz if take else i
-            _normalise_row(row, lo, scale, ub)
-            for k in range(3):
-                t = tint[k, r]
-                ck = np.float32(colours[z0 + z, k])
-                for c in range(nc):
-                    t[c] = max(t[c], ck * ub[c])
+                v[c] = np.fmax(x, cur)
+                ix[c] = i ^ ((i ^ zz) & -np.int32(take))
+                u = (np.float32(x) - lo32) * sc32
+                u = u if u > np.float32(0.0) else np.float32(0.0)
+                u = u if u < np.float32(1.0) else np.float32(1.0)
+                t0[c] = np.maximum(t0[c], c0 * u)
+                t1[c] = np.maximum(t1[c], c1 * u)
+                t2[c] = np.maximum(t2[c], c2 * u)
 
 
 @njit(**_OPTS)
@@ -140,19 +163,14 @@ def blend_update_lut(block, table, offset, reverse, colour, trans):
     for r in prange(nr):
         col = colour[r]
         tr = trans[r]
-        emit = np.empty(nc, np.float64)
-        keep = np.empty(nc, np.float64)
         for k in range(nz):
             z = nz - 1 - k if reverse else k
             row = block[z, r]
             for c in range(nc):
                 j = np.int64(row[c]) + offset
-                emit[c] = table[j, 0]
-                keep[c] = table[j, 1]
-            for c in range(nc):
-                col[c] += tr[c] * emit[c]
-            for c in range(nc):
-                tr[c] *= keep[c]
+                t = tr[c]
+                col[c] += t * table[j, 0]
+                tr[c] = t * table[j, 1]
 
 
 @njit(**_OPTS)

@@ -1,0 +1,132 @@
+"""Speed and memory of the projection kernels on a 64 x 1024 x 1024 uint16 stack.
+
+Times are ratios to ``np.max(stack, axis=0)`` measured in the same run (best
+of several repeats each, interleaved so that machine load affects both).
+Extra peak memory is measured with tracemalloc (numpy reports its buffers to
+it) and given as a fraction of the stack's bytes.
+
+Run on demand::
+
+    python tests/benchmarks/bench_projections.py
+    pytest tests/benchmarks -s -o addopts=""
+
+Targets (issue 3): brightest_point <= 2.5x, depth_coded_projection <= 3x,
+blended_projection <= 5x np.max; extra peak memory <= 25 % of the stack.
+"""
+
+from __future__ import annotations
+
+import os
+import platform
+import time
+import tracemalloc
+from typing import Callable
+
+import numpy as np
+
+from viewer_plugin.kernels import projections as P
+
+SHAPE = (64, 1024, 1024)
+REPEATS = 7
+TIME_TARGETS = {
+    "brightest_point": 2.5,
+    "depth_coded_projection[brightest]": 3.0,
+    "depth_coded_projection[weighted]": 3.0,
+    "depth_coded_projection[tinted]": 3.0,
+    "blended_projection": 5.0,
+}
+MEMORY_TARGET = 0.25
+CLIM = (100.0, 3000.0)
+
+
+def make_stack(seed: int = 0) -> np.ndarray:
+    """A uint16 stack: noisy background plus bright random line segments."""
+    rng = np.random.default_rng(seed)
+    stack = rng.poisson(120, size=SHAPE).astype(np.uint16)
+    n, h, w = SHAPE
+    for _ in range(200):
+        z, y, x = rng.integers(0, n), rng.integers(0, h - 200), rng.integers(0, w - 200)
+        t = np.arange(200)
+        stack[z, y + t * rng.integers(0, 2), x + t] = rng.integers(1000, 4000)
+    return stack
+
+
+def cases(stack: np.ndarray) -> dict[str, Callable[[], object]]:
+    """The timed calls (explicit clim, as the widget passes its contrast limits)."""
+    out: dict[str, Callable[[], object]] = {
+        "brightest_point": lambda: P.brightest_point(stack),
+    }
+    for method in P.METHODS:
+        out[f"depth_coded_projection[{method}]"] = (
+            lambda m=method: P.depth_coded_projection(stack, method=m, clim=CLIM))
+    out["depth_coded_projection[brightest, auto clim]"] = (
+        lambda: P.depth_coded_projection(stack))
+    out["blended_projection"] = lambda: P.blended_projection(stack, clim=CLIM)
+    out["blended_projection[bottom]"] = lambda: P.blended_projection(stack, clim=CLIM, view="bottom")
+    out["blended_projection[cmap]"] = lambda: P.blended_projection(stack, clim=CLIM, cmap="viridis")
+    return out
+
+
+def _best(fn: Callable[[], object]) -> float:
+    start = time.perf_counter()
+    fn()
+    return time.perf_counter() - start
+
+
+def run_benchmarks(stack: np.ndarray | None = None) -> dict[str, dict[str, float]]:
+    """Time and measure every case; returns {name: {seconds, ratio, memory}}."""
+    stack = make_stack() if stack is None else stack
+    P.warm_up()
+    for fn in cases(stack).values():  # compile anything warm_up did not cover
+        fn()
+    reference = lambda: np.max(stack, axis=0)  # noqa: E731
+    results: dict[str, dict[str, float]] = {}
+    for name, fn in cases(stack).items():
+        ref_times, times = [], []
+        for _ in range(REPEATS):
+            ref_times.append(_best(reference))
+            times.append(_best(fn))
+        tracemalloc.start()
+        fn()
+        _, peak = tracemalloc.get_traced_memory()
+        tracemalloc.stop()
+        results[name] = {
+            "seconds": min(times),
+            "np_max_seconds": min(ref_times),
+            "ratio": min(times) / min(ref_times),
+            "memory": peak / stack.nbytes,
+        }
+    return results
+
+
+def report(results: dict[str, dict[str, float]]) -> str:
+    """Markdown table of the results and the machine."""
+    lines = [
+        f"date {time.strftime('%Y-%m-%d %H:%M UTC', time.gmtime())}; "
+        f"{platform.processor() or platform.machine()}, {os.cpu_count()} cores; "
+        f"numpy {np.__version__}; stack {SHAPE} uint16",
+        "",
+        "| kernel | seconds | np.max seconds | ratio | target | extra peak memory |",
+        "|---|---|---|---|---|---|",
+    ]
+    for name, r in results.items():
+        target = TIME_TARGETS.get(name)
+        lines.append(
+            f"| {name} | {r['seconds']:.4f} | {r['np_max_seconds']:.4f} | {r['ratio']:.2f} | "
+            f"{'<= %.1f' % target if target else '-'} | {100 * r['memory']:.1f} % |")
+    return "\n".join(lines)
+
+
+def test_projection_speed_and_memory():
+    """Targets of issue 3 (ratios to np.max in the same run, tracemalloc peak)."""
+    results = run_benchmarks()
+    print()
+    print(report(results))
+    for name, target in TIME_TARGETS.items():
+        assert results[name]["ratio"] <= target, (name, results[name])
+    for name in TIME_TARGETS:
+        assert results[name]["memory"] <= MEMORY_TARGET, (name, results[name])
+
+
+if __name__ == "__main__":
+    print(report(run_benchmarks()))
