@@ -325,3 +325,17 @@ def test_nan_voxels(stack60):
     assert fit.length_um == pytest.approx(60.0, rel=0.03)
     with pytest.raises(ParameterError, match="^mask: expected a mask that keeps"):
         estimate_attenuation(stack60, z_step=2.0, mask=np.zeros(stack60.shape[1:], bool))
+
+
+def test_docs_sanity_range_matches_the_published_coefficients():
+    # Al-Juboori et al., PLoS ONE 2013, doi:10.1371/journal.pone.0067626 (REFERENCES.md,
+    # confirmed): effective attenuation coefficients 9.76 (cerebellum) to 18.16 mm^-1 (MNTB)
+    # at 453 nm. The 1/e length is 1 / coefficient; the docs quote the rounded range.
+    from pathlib import Path
+
+    docs = (Path(__file__).resolve().parents[2] / "docs" / "attenuation.md").read_text(encoding="utf-8")
+    shortest, longest = 1000.0 / 18.16, 1000.0 / 9.76
+    assert round(shortest) == 55 and round(longest) == 102
+    assert f"{round(shortest)}–{round(longest)} µm" in docs
+    for value in ("9.76", "18.16", "14.88"):
+        assert value in docs

@@ -315,8 +315,7 @@ def estimate_attenuation(
     .. [3] Kervrann, Legland & Pardini, "Robust incremental compensation of the
            light attenuation with depth in 3D fluorescence microscopy",
            J Microsc 214(3):297-314, 2004.
-    .. [4] N. Otsu, "A threshold selection method from gray-level histograms",
-           IEEE Trans SMC 9(1):62-66, 1979, doi:10.1109/TSMC.1979.4310076.
+    .. [4] N. Otsu, IEEE Trans SMC 9(1):62-66, 1979 (used only for noise-free data).
 
     Examples
     --------
