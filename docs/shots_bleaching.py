@@ -61,10 +61,13 @@ def main() -> int:
     viewer.canvas.grid.enabled = True
     viewer.dims.set_current_step(0, series.data.shape[0] - 1)
     viewer.reset_view()
+    viewer.canvas.overlays["text"].text = "last time point - left: original, right: bleach-corrected"
+    viewer.canvas.overlays["text"].visible = True
     for _ in range(10):
         app.processEvents()
     viewer.screenshot(str(IMAGES / "bleaching_corrected.png"), canvas_only=False)
     viewer.canvas.grid.enabled = False
+    viewer.canvas.overlays["text"].visible = False
 
     viewer.layers.clear()
     slab = demo.fibre_slab()

@@ -197,9 +197,11 @@ def effective_rate(fit: ModelFit, n: int) -> float:
     return float(1.0 - ratio ** (1.0 / (n - 1)))
 
 
-def rate_interval(fit: ModelFit, n: int, *, level: float = 0.95) -> tuple[float, float]:
-    """Confidence interval of :func:`effective_rate` (delta method, Student t)."""
-    dof = n - fit.n_params
+def rate_interval(fit: ModelFit, n: int, *, n_points: int | None = None,
+                  level: float = 0.95) -> tuple[float, float]:
+    """Confidence interval of :func:`effective_rate` over *n* frames (delta method, Student t
+    with ``n_points - n_params`` degrees of freedom; *n_points* frames were fitted)."""
+    dof = (n if n_points is None else n_points) - fit.n_params
     if dof <= 0 or not np.all(np.isfinite(fit.cov)):
         return (float("nan"), float("nan"))
     rate = effective_rate(fit, n)
@@ -214,7 +216,7 @@ def rate_interval(fit: ModelFit, n: int, *, level: float = 0.95) -> tuple[float,
     if not math.isfinite(variance) or variance < 0:
         return (float("nan"), float("nan"))
     half = float(stats.t.ppf(0.5 + level / 2, dof)) * math.sqrt(variance)
-    return (rate - half, rate + half)
+    return (rate - half, min(rate + half, 1.0))
 
 
 def half_life_frames(fit: ModelFit) -> float:

@@ -104,7 +104,7 @@ def masked_profile(
     done: int = 0,
     total: int = 1,
 ) -> tuple[np.ndarray, np.ndarray]:
-    """Mean over *mask*, background level and foreground fraction of every frame.
+    """Mean over *mask*, background level, foreground fraction and background sd of every frame.
 
     All float64, one value per frame of a depth-first array. With ``mask=None``
     every frame uses its own Otsu foreground (for the slices of one stack,
@@ -120,6 +120,7 @@ def masked_profile(
     out = np.empty(n, dtype=np.float64)
     levels = np.empty(n, dtype=np.float64)
     counts = np.empty(n, dtype=np.float64)
+    sigmas = np.empty(n, dtype=np.float64)
     plane = plane_nbytes(tuple(moved.shape), moved.dtype)
     for part in depth_chunks(n, plane):
         block = _as_numpy(moved[part])
@@ -129,10 +130,12 @@ def masked_profile(
                 here = np.ones(frame.shape, dtype=bool)
             out[part.start + j] = float(frame[here].mean(dtype=np.float64))
             counts[part.start + j] = np.count_nonzero(here) / here.size
-            levels[part.start + j] = background_level(frame).level
+            background = background_level(frame)
+            levels[part.start + j] = background.level
+            sigmas[part.start + j] = background.sigma
         done += part.stop - part.start
         report_progress(progress, done, total)
-    return out, levels, counts
+    return out, levels, counts, sigmas
 
 
 def per_slice_masks(forward: Any, reverse: Any, *, progress: Any = None,

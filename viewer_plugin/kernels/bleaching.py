@@ -255,17 +255,20 @@ def _constant_report(n: int, level: float, interval: float, tolerance: float,
     )
 
 
-def _fit_report(signal: np.ndarray, *, interval: float, tolerance: float, axis_kind: str,
-                offset: float, sigma: float, fraction: float) -> BleachingReport:
+def _fit_report(signal: np.ndarray, used: np.ndarray, *, interval: float, tolerance: float,
+                axis_kind: str, offset: float, sigma: float, fraction: float) -> BleachingReport:
     n = signal.size
     t = np.arange(n, dtype=np.float64)
-    fits = _bleach_fit.fit_models(t, signal)
+    n_used = int(np.count_nonzero(used))
+    fits = _bleach_fit.fit_models(t[used], signal[used])
     if "single" not in fits:
         fail("series", "a foreground signal a decay can be fitted to", "<a profile that no fit converged on>")
-    best, why = _bleach_fit.select_model(fits, n)
+    best, why = _bleach_fit.select_model(fits, n_used)
+    if n_used < n:
+        why += f"; {n - n_used} slices without a clear foreground left out of the fit"
     model = best.predict(t)
     rate = _bleach_fit.effective_rate(best, n)
-    rate_ci = _bleach_fit.rate_interval(best, n)
+    rate_ci = _bleach_fit.rate_interval(best, n, n_points=n_used)
     lost = 1.0 - model[-1] / model[0] if model[0] > 0 else math.nan
     lost_ci = _lost_interval(rate_ci, n)
     significant = not (math.isfinite(lost_ci[0]) and lost_ci[0] <= 0.0 <= lost_ci[1])
@@ -275,7 +278,7 @@ def _fit_report(signal: np.ndarray, *, interval: float, tolerance: float, axis_k
     return BleachingReport(
         rate_per_frame=rate, rate_interval=rate_ci, half_life=max(0.0, half), fraction_lost=lost,
         fraction_lost_interval=lost_ci, exceeds_tolerance=exceeds, tolerance=tolerance,
-        r_squared=_r_squared(signal, best.rss), model=best.name, model_choice=why,
+        r_squared=_r_squared(signal[used], best.rss), model=best.name, model_choice=why,
         components=components, plateau=plateau, profile=_frozen(signal),
         model_profile=_frozen(model), offset=offset, background_sigma=sigma,
         foreground_fraction=fraction, n_frames=n, interval=interval, axis_kind=axis_kind,
@@ -283,7 +286,7 @@ def _fit_report(signal: np.ndarray, *, interval: float, tolerance: float, axis_k
         summary=bleaching_summary(fraction_lost=lost, half_life=half, n_frames=n,
                                   tolerance=tolerance, axis_kind=axis_kind,
                                   significant=significant or exceeds,
-                                  r_squared=_r_squared(signal, best.rss)),
+                                  r_squared=_r_squared(signal[used], best.rss)),
     )
 
 
@@ -304,7 +307,9 @@ def estimate_bleaching(
     minus its background level. For a time axis the mask is fixed: the Otsu
     foreground of the (lightly smoothed) first frame, so a structure appearing
     later is not counted. The slices of a single stack show different
-    structures, so for a depth axis each slice uses its own Otsu foreground. First-order bleaching
+    structures, so for a depth axis each slice uses its own Otsu foreground,
+    and slices without a clear foreground (less than 1.5 background standard
+    deviations above it: above or below the tissue) are left out of the fit. First-order bleaching
     ``I_t = I_0 (1 - k)**t`` is fitted by least squares; a plateau or a second
     component replaces it only when the F-test finds it significantly better
     (p < 0.01).
@@ -397,7 +402,8 @@ def estimate_bleaching(
     elif mask is not None and hasattr(mask, "compute"):
         mask = np.asarray(mask.compute())
     report_progress(progress, 1, total)
-    raw, levels, fractions = masked_profile(moved, mask, progress=progress, done=1, total=total)
+    raw, levels, fractions, sigmas = masked_profile(moved, mask, progress=progress, done=1,
+                                                    total=total)
     signal = raw - (levels if offset is None else level)
     if np.ptp(raw) == 0 and background.sigma == 0:
         return _constant_report(n, level, interval, tolerance, axis_kind)
@@ -407,7 +413,13 @@ def estimate_bleaching(
              "above the background in some frame", f"<at most {head:.4g} above a background of "
              f"{level:.4g} (sd {background.sigma:.3g})>",
              hint="the series looks like background only; pass a mask or check the layer")
-    return _fit_report(signal, interval=interval, tolerance=tolerance, axis_kind=axis_kind,
+    used = np.ones(n, dtype=bool)
+    if axis_kind == "depth" and mask is None:
+        # slices without a clear foreground (above or below the tissue) hold only noise
+        used = signal > MIN_CONTRAST * np.where(np.isfinite(sigmas), sigmas, 0.0)
+        if np.count_nonzero(used) < 2:
+            used = np.ones(n, dtype=bool)
+    return _fit_report(signal, used, interval=interval, tolerance=tolerance, axis_kind=axis_kind,
                        offset=level, sigma=background.sigma, fraction=float(np.mean(fractions)))
 
 
