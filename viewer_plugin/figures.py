@@ -358,6 +358,28 @@ def _build_figure(result: Any, *, pixel_size_um: Any, scale_bar_um: float | None
     return fig, parts, pixel, scale_bar_um
 
 
+def _sidecar_record(path: Path, params: dict[str, Any], parts: LegendParts, *, source_name: str,
+                    pixel: tuple[float, float], scale_bar_um: float, shape: tuple[int, ...],
+                    methods: str) -> dict[str, Any]:
+    """The JSON sidecar: parameters, provenance, colour bar ticks and the methods text."""
+    d0, d1 = parts.depth_range
+    return {
+        "figure": path.name,
+        "stackdepth_version": __version__,
+        "created_utc": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
+        "source": source_name or params.get("source_file"),
+        "parameters": params,
+        "pixel_size_um": list(pixel),
+        "scale_bar_um": scale_bar_um,
+        "colour_bar": {"unit": "\u00b5m", "depth_range_um": [d0, d1],
+                       "tick_labels": list(parts.labels),
+                       "tick_depths_um": [d0 + f * (d1 - d0) for f in parts.positions]},
+        "image_shape": list(shape),
+        "methods": methods.strip(),
+        "caveat": CAVEAT,
+    }
+
+
 def export_depth_figure(
     result: Any,
     path: str | Path,
@@ -430,22 +452,8 @@ def export_depth_figure(
         text = methods_sentence(params, legend_range=parts.depth_range)
         atomic_write_bytes(path, lambda tmp: fig.savefig(tmp, format=fmt, dpi=fig.dpi,
                                                          facecolor="white"))
-    record = {
-        "figure": path.name,
-        "stackdepth_version": __version__,
-        "created_utc": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
-        "source": source_name or params.get("source_file"),
-        "parameters": params,
-        "pixel_size_um": list(pixel),
-        "scale_bar_um": scale_bar_um,
-        "colour_bar": {"unit": "\u00b5m", "depth_range_um": list(parts.depth_range),
-                       "tick_labels": list(parts.labels),
-                       "tick_depths_um": [parts.depth_range[0] + f * (parts.depth_range[1]
-                                          - parts.depth_range[0]) for f in parts.positions]},
-        "image_shape": list(rgb.shape[:2]),
-        "methods": text.strip(),
-        "caveat": CAVEAT,
-    }
+    record = _sidecar_record(path, params, parts, source_name=source_name, pixel=pixel,
+                             scale_bar_um=scale_bar_um, shape=rgb.shape[:2], methods=text)
     write_json(sidecar, record)
     atomic_write_bytes(methods, lambda tmp: tmp.write_text(text, encoding="utf-8"))
     return FigureFiles(path, sidecar, methods, text)

@@ -44,15 +44,13 @@ def _run(qtbot, widget, *, signal="returned"):
 @pytest.fixture
 def errors(monkeypatch):
     """Collect napari error notifications raised by the widgets (instead of exceptions)."""
-    seen: list[str] = []
-    import viewer_plugin.widgets._proj_base as base
-    import viewer_plugin.widgets._runner as runner
-
-    monkeypatch.setattr(runner, "show_error", seen.append)
     import napari.utils.notifications as notes
 
+    import viewer_plugin.widgets._runner as runner
+
+    seen: list[str] = []
+    monkeypatch.setattr(runner, "show_error", seen.append)
     monkeypatch.setattr(notes, "show_error", seen.append)
-    assert base  # imported for its side effect of loading the widgets
     return seen
 
 
@@ -170,8 +168,15 @@ def test_brightest_point_depth_axis_from_labels(make_napari_viewer, qtbot):
     assert widget.layer is layer and widget.axis_combo.value == 1
     _run(qtbot, widget)
     top = viewer.layers["series max"]
-    np.testing.assert_array_equal(top.data, data.max(axis=1))  # numpy reference
-    np.testing.assert_allclose(top.scale, (30.0, 0.5, 0.5))
+    # numpy reference; the depth axis stays as one slice spanning the 12 x 2 um stack, so the
+    # time axis lines up with the source's time axis in the viewer (not with its z axis)
+    np.testing.assert_array_equal(top.data, data.max(axis=1, keepdims=True))
+    np.testing.assert_allclose(top.scale, (30.0, 24.0, 0.5, 0.5))
+    np.testing.assert_allclose(top.translate, (0.0, 11.0, 0.0, 0.0))
+    viewer.dims.set_point(0, 30.0)  # second time point, any depth: the second projection shows
+    for z_um in (0.0, 22.0):
+        viewer.dims.set_point(1, z_um)
+        assert top.get_value((30.0, z_um, 0.5 * 20, 0.5 * 20), world=True) == data[1, :, 20, 20].max()
 
 
 def test_blended_widget_side_views_geometry(make_napari_viewer, qtbot):
@@ -256,3 +261,80 @@ def test_demo_fibre_slab_depth_colour(make_napari_viewer, qtbot):
     depth = viewer.layers[f"{stack.name} depth of max (\u00b5m)"]
     np.testing.assert_allclose(depth.data, stack.data.argmax(axis=0) * stack.scale[0])  # numpy
     np.testing.assert_array_equal(layer.data, before)
+
+
+def test_kernel_error_becomes_notification(make_napari_viewer, qtbot, errors, monkeypatch):
+    """A ParameterError raised inside the kernel (worker thread) is a notification, no layer."""
+    from viewer_plugin.kernels import ParameterError, projections
+    from viewer_plugin.widgets.projection import DepthColourWidget
+
+    def broken(*args, **kwargs):
+        raise ParameterError("clim: expected a pair (low, high) with high > low, got (5, 5)")
+
+    monkeypatch.setattr(projections, "depth_coded_projection", broken)
+    viewer = make_napari_viewer(show=True)
+    _add_stack(viewer)
+    widget = DepthColourWidget(viewer)
+    _run(qtbot, widget)
+    assert errors and errors[0].startswith("Depth colour projection: clim: expected")
+    assert "cells depth colour" not in viewer.layers
+    assert widget.compute_button.enabled
+
+
+def test_parameter_change_starts_debounced_preview(make_napari_viewer, qtbot):
+    from viewer_plugin.widgets.projection import DepthColourWidget
+
+    viewer = make_napari_viewer(show=True)
+    _add_stack(viewer)
+    widget = DepthColourWidget(viewer)
+    widget.gamma.value = 0.8
+    widget.cmap.value = "magma"  # two changes inside the delay: one preview
+    qtbot.waitUntil(lambda: widget.preview_layer is not None, timeout=WAIT_MS)
+    qtbot.waitUntil(lambda: widget.preview_worker is None, timeout=WAIT_MS)
+    assert [layer.name for layer in viewer.layers].count("cells depth colour (preview)") == 1
+
+
+def test_widgets_open_from_the_plugin_menu(make_napari_viewer):
+    """The manifest's display names build the three widgets (as Plugins > stackdepth does)."""
+    viewer = make_napari_viewer(show=True)
+    _add_stack(viewer)
+    for title in ("Depth colour projection", "Brightest-point projection", "Blended projection"):
+        _dock, widget = viewer.window.add_plugin_dock_widget("stackdepth", title)
+        assert widget.title == title and widget.layer is viewer.layers["cells"]
+
+
+def test_export_time_series_uses_current_time_point(make_napari_viewer, qtbot, tmp_path):
+    from viewer_plugin.widgets.projection import DepthColourWidget
+
+    viewer = make_napari_viewer(show=True)
+    data = np.stack([_stack(seed=1), _stack(seed=2)])
+    viewer.add_image(data, name="series", scale=(30.0, 2.0, 0.5, 0.5),
+                     axis_labels=("t", "z", "y", "x"))
+    widget = DepthColourWidget(viewer)
+    _run(qtbot, widget)
+    assert viewer.layers["series depth colour"].data.shape == (2, 1, 40, 48, 3)
+    viewer.dims.set_point(0, 30.0)  # the second time point
+    plane = widget._current_plane(widget.result)
+    np.testing.assert_array_equal(plane.rgb, widget.result.rgb[1])
+    assert widget.export_figure(tmp_path / "t1.png") is not None
+
+
+@pytest.mark.realdata
+def test_real_cortex_depth_map(make_napari_viewer, qtbot, realdata):
+    """Open data: cortex_cells_serial_twophoton.ome.tif (BSD 3-Clause, (c) 2020 Adam Tyson, UCL,
+    brainglobe/cellfinder test data); 5 um z-steps. Reference: numpy argmax x z-step."""
+    from viewer_plugin.io import read_stack
+    from viewer_plugin.widgets.projection import BrightestPointWidget
+
+    stack = read_stack(realdata / "cortex_cells_serial_twophoton.ome.tif")
+    data = np.asarray(stack.data)
+    viewer = make_napari_viewer(show=True)
+    layer = viewer.add_image(data, name="cortex", scale=stack.scale, axis_labels=("z", "y", "x"))
+    widget = BrightestPointWidget(viewer)
+    assert widget.z_step.value == pytest.approx(5.0)
+    _run(qtbot, widget)
+    depth = viewer.layers["cortex depth of max (\u00b5m)"]
+    np.testing.assert_allclose(depth.data, data.argmax(axis=0) * 5.0)
+    np.testing.assert_array_equal(viewer.layers["cortex max"].data, data.max(axis=0))
+    np.testing.assert_array_equal(layer.data, np.asarray(read_stack(realdata /
+                                  "cortex_cells_serial_twophoton.ome.tif").data))

@@ -77,6 +77,28 @@ def geometry_without(layer: Any, axis: int) -> dict[str, Any]:
     return out
 
 
+def span_depth(data: np.ndarray, layer: Any, axis: int,
+               geometry: dict[str, Any]) -> tuple[np.ndarray, dict[str, Any]]:
+    """Insert the projected *axis* back as one slice covering the stack's whole depth.
+
+    napari lines up layers of different dimensionality by their last axes; a (t, y, x)
+    projection of a (t, z, y, x) stack would otherwise step with the z slider. The slice
+    has scale ``n * step`` and sits at the stack's centre, so it is shown at every z.
+    """
+    n, step = int(layer.data.shape[axis]), float(layer.scale[axis])
+    out = dict(geometry)
+    out["scale"] = list(geometry["scale"])
+    out["scale"].insert(axis, n * step)
+    out["translate"] = list(geometry["translate"])
+    out["translate"].insert(axis, float(layer.translate[axis]) + (n - 1) * step / 2.0)
+    out["axis_labels"] = list(geometry["axis_labels"])
+    out["axis_labels"].insert(axis, str(leading_axis_labels(layer)[axis]))
+    if "units" in geometry:
+        out["units"] = list(geometry["units"])
+        out["units"].insert(axis, str(layer.units[axis]))
+    return np.expand_dims(data, axis), out
+
+
 def preview_step(shape: tuple[int, ...], axis: int, *, voxels: int = PREVIEW_VOXELS) -> int:
     """Step in y and x for a preview: 4, or more so the copy stays below *voxels*."""
     total = float(np.prod(shape, dtype=np.float64))
@@ -329,7 +351,14 @@ class ProjectionWidget(Container):
             self.status.value = ""
 
     def add_result(self, data: Any, layer: Any, axis: int, *, name: str, **kwargs: Any) -> Any:
-        """Add *data* (the projection of *layer* along *axis*) as a new image layer."""
+        """Add *data* (the projection of *layer* along *axis*) as a new image layer.
+
+        A projection of a 3-D stack is a 2-D layer. With more axes (time, channel) the
+        depth axis is kept as one slice spanning the whole stack (see :func:`span_depth`),
+        so that napari lines the result's time axis up with the source's, not with z.
+        """
         geometry = geometry_without(layer, axis)
+        if layer.ndim >= 4:
+            data, geometry = span_depth(np.asarray(data), layer, axis, geometry)
         geometry.update(kwargs)
         return self.viewer.add_image(data, name=name, **geometry)

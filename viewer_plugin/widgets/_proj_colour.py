@@ -298,14 +298,13 @@ class DepthColourWidget(ProjectionWidget):
         rgb = np.asarray(result.rgb)
         if rgb.ndim <= 3:
             return result
-        lead = rgb.ndim - 3
         layer = self.result_layer
-        world = self.viewer.dims.point[-(rgb.ndim - 1):]
-        index = []
-        for j in range(lead):
-            pos = (world[j] - layer.translate[j]) / layer.scale[j]
-            index.append(int(np.clip(round(pos), 0, rgb.shape[j] - 1)))
-        return _Plane(rgb[tuple(index)], result)
+        position = np.asarray(layer.world_to_data(self.viewer.dims.point[-layer.ndim:]))
+        axis = int(layer.metadata["stackdepth"]["depth_axis"])
+        position = np.delete(position, axis)  # the depth axis is kept as one slice (span_depth)
+        index = tuple(int(np.clip(round(float(position[j])), 0, rgb.shape[j] - 1))
+                      for j in range(rgb.ndim - 3))
+        return _Plane(rgb[index], result)
 
 
 class _Plane:

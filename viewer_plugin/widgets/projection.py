@@ -13,7 +13,7 @@ from typing import TYPE_CHECKING, Any, Callable
 import numpy as np
 from magicgui.widgets import CheckBox, ComboBox, FloatSpinBox, Label
 
-from ._proj_base import ProjectionWidget
+from ._proj_base import ProjectionWidget, span_depth
 from ._proj_colour import DepthColourWidget
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -179,18 +179,21 @@ class BlendedWidget(ProjectionWidget):
         y_axis, x_axis = others[-2], others[-1]
         lead = others[:-2]
         across = x_axis if along == "y" else y_axis
-        scale = [float(layer.scale[i]) for i in lead] + [z_step, float(layer.scale[across])]
         ty, tx = float(layer.translate[y_axis]), float(layer.translate[x_axis])
         height = layer.data.shape[y_axis] * float(layer.scale[y_axis])
         width = layer.data.shape[x_axis] * float(layer.scale[x_axis])
         gap = 0.05 * max(height, width)
         left = tx if along == "y" else tx + width + gap
-        translate = [float(layer.translate[i]) for i in lead] + [ty + height + gap, left]
-        labels = [str(layer.axis_labels[i]) for i in lead] + [str(layer.axis_labels[axis]),
-                                                                str(layer.axis_labels[across])]
-        extra = {}
+        # the side view's rows (depth) and columns are drawn on the viewer's y and x axes
+        geometry: dict[str, Any] = {
+            "scale": [float(layer.scale[i]) for i in lead] + [z_step, float(layer.scale[across])],
+            "translate": [float(layer.translate[i]) for i in lead] + [ty + height + gap, left],
+            "axis_labels": [str(layer.axis_labels[i]) for i in lead]
+            + [str(layer.axis_labels[axis]), str(layer.axis_labels[across])],
+        }
         if getattr(layer, "units", None) is not None:
-            extra["units"] = [str(layer.units[i]) for i in (*lead, axis, across)]
+            geometry["units"] = [str(layer.units[i]) for i in (*lead, axis, across)]
+        if lead:  # keep time/channel axes lined up with the source (see span_depth)
+            view, geometry = span_depth(view, layer, len(lead), geometry)
         return self.viewer.add_image(view, name=f"{layer.name} blended side (along {along})",
-                                     scale=scale, translate=translate, axis_labels=labels,
-                                     colormap="gray", **extra)
+                                     colormap="gray", **geometry)
