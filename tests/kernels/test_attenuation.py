@@ -339,3 +339,31 @@ def test_docs_sanity_range_matches_the_published_coefficients():
     assert f"{round(shortest)}–{round(longest)} µm" in docs
     for value in ("9.76", "18.16", "14.88"):
         assert value in docs
+
+
+@pytest.mark.parametrize("dtype", [np.uint8, np.float32, np.float64, np.int32])
+def test_dtypes(stack60, dtype):
+    # the same stack in other types (uint8: scaled by 1/4 to fit) gives the same length
+    data = stack60 / 4 if dtype == np.uint8 else stack60
+    data = np.clip(np.rint(data), 0, 255) if dtype == np.uint8 else data
+    fit = estimate_attenuation(data.astype(dtype), z_step=2.0)
+    assert fit.length_um == pytest.approx(60.0, rel=0.04)
+    assert correct_attenuation(data.astype(dtype), fit).dtype == np.float32
+
+
+def test_saturated_foreground_is_noted(stack60):
+    clipped = np.minimum(stack60.astype(np.float64) / 3, 255).astype(np.uint8)
+    fit = estimate_attenuation(clipped, z_step=2.0)
+    assert any("saturated" in note for note in fit.warnings)
+
+
+def test_histogram_capping_falls_back_to_the_capped_gain():
+    stack = beer_lambert(n=12, length=10.0, shape=(64, 64), seed=14)
+    fit = estimate_attenuation(stack, z_step=2.0, model="histogram")
+    with pytest.warns(AttenuationWarning, match="capped"):
+        out = correct_attenuation(stack, fit, max_gain=2.0)
+    capped = np.flatnonzero(fit.gain > 2.0)
+    assert capped.size
+    last = capped[-1]
+    expected = (stack[last].astype(np.float64) - fit.offset) * 2.0 + fit.offset
+    np.testing.assert_allclose(out[last], expected, rtol=1e-5, atol=1e-2)

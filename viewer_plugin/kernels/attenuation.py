@@ -230,6 +230,23 @@ def _findings(fit: models.ExponentialFit, fg: Foreground, length: float,
     return notes
 
 
+def _saturation_note(dtype: np.dtype, sample: np.ndarray, fg: Foreground) -> list[str]:
+    """A note when more than 1 % of a slice's foreground sits at the integer type's maximum."""
+    dtype = np.dtype(dtype)
+    if dtype.kind not in "ui":
+        return []
+    top = float(np.iinfo(dtype).max)
+    saturated = (sample >= top).sum(axis=1)
+    foreground = fg.fraction * np.isfinite(sample).sum(axis=1)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        share = np.where(foreground > 0, saturated / foreground, 0.0)
+    bad = int((share > 0.01).sum())
+    if not bad:
+        return []
+    return [f"{bad} slice(s) have more than 1 % of their foreground at the maximum value "
+            f"{int(top)} (saturated): their signal, and so the attenuation, is underestimated"]
+
+
 def estimate_attenuation(
     stack: Any,
     *,
@@ -365,6 +382,7 @@ def estimate_attenuation(
         maps = models.quantile_maps(sample, 0)
         gain = models.equivalent_gain(maps[0], maps[1], offset)
     notes = _findings(exp_fit, fg, length, interval, converged)
+    notes += _saturation_note(stack.dtype, sample, fg)
     if not converged:
         warnings.warn(f"estimate_attenuation: {notes[0]}", AttenuationWarning, stacklevel=2)
     report_progress(progress, total, total)
