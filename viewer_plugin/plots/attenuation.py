@@ -95,12 +95,11 @@ def attenuation_figure(
     top.set_ylabel("signal above background")
     top.legend(loc="upper right", fontsize="small", frameon=False)
     if annotate:
-        lines = [length_text(fit), f"exponential fit r² = {fit.r_squared:.3f}"]
+        lines = [f"{length_text(fit)}; exponential fit r² = {fit.r_squared:.3f}"]
         demo = truth_text(truth)
         if demo:
             lines.append(demo)
-        top.text(0.02, 0.04, "\n".join(lines), transform=top.transAxes, fontsize="small",
-                 va="bottom")
+        top.set_title("\n".join(lines), fontsize="small", loc="left")
     gain = np.where(np.isfinite(fit.gain), fit.gain, np.nan)
     shown = gain if max_gain is None else np.minimum(gain, max_gain)
     bottom.plot(depth, shown, color="tab:green", lw=2, label="gain")
