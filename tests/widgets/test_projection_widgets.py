@@ -212,12 +212,13 @@ def test_cancel_stops_and_adds_nothing(make_napari_viewer, qtbot):
     widget = BlendedWidget(viewer)
     worker = widget.compute(start_thread=False)
     assert widget.cancel_button.enabled and not widget.compute_button.enabled
-    widget.task.cancel()  # before the first chunk: the first progress call raises Cancelled
+    widget.cancel()  # before the first chunk: the first progress call raises Cancelled
     with qtbot.waitSignal(worker.finished, timeout=WAIT_MS):
         worker.start()
     qtbot.waitUntil(lambda: not widget.task.running, timeout=WAIT_MS)
     assert not any("blended" in layer.name for layer in viewer.layers)
     assert widget.compute_button.enabled and not widget.cancel_button.enabled
+    assert widget.status.value.startswith("Cancelled")
 
 
 def test_export_figure_from_widget(make_napari_viewer, qtbot, tmp_path):
@@ -314,6 +315,10 @@ def test_export_time_series_uses_current_time_point(make_napari_viewer, qtbot, t
     _run(qtbot, widget)
     assert viewer.layers["series depth colour"].data.shape == (2, 1, 40, 48, 3)
     viewer.dims.set_point(0, 30.0)  # the second time point
+    worker = widget.update_preview(start_thread=False)
+    with qtbot.waitSignal(worker.finished, timeout=WAIT_MS):
+        worker.start()
+    assert widget.preview_layer.data.shape == (2, 1, 10, 12, 3)  # lined up like the full result
     plane = widget._current_plane(widget.result)
     np.testing.assert_array_equal(plane.rgb, widget.result.rgb[1])
     assert widget.export_figure(tmp_path / "t1.png") is not None

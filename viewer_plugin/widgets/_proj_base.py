@@ -170,7 +170,7 @@ class ProjectionWidget(Container):
             if isinstance(widget, Label):  # long messages wrap instead of widening the dock
                 widget.native.setWordWrap(True)
         self.compute_button.changed.connect(self.compute)
-        self.cancel_button.changed.connect(self.task.cancel)
+        self.cancel_button.changed.connect(self.cancel)
         self.task.started.append(self._on_started)
         self.task.finished.append(self._on_finished)
         self.layer_combo.changed.connect(self._on_layer_changed)
@@ -339,7 +339,14 @@ class ProjectionWidget(Container):
         self.last_worker = worker
         return worker
 
+    def cancel(self, *_: Any) -> None:
+        """Stop the running computation at its next chunk; nothing is added."""
+        if self.task.running:
+            self._cancelling = True
+            self.task.cancel()
+
     def _on_started(self) -> None:
+        self._cancelling = False
         self.compute_button.enabled = False
         self.cancel_button.enabled = True
         self.status.value = "Computing\u2026"
@@ -347,7 +354,10 @@ class ProjectionWidget(Container):
     def _on_finished(self) -> None:
         self.compute_button.enabled = self.layer is not None
         self.cancel_button.enabled = False
-        if self.status.value == "Computing\u2026":
+        if getattr(self, "_cancelling", False):
+            self.status.value = "Cancelled: no layer added."
+            self._cancelling = False
+        elif self.status.value == "Computing\u2026":
             self.status.value = ""
 
     def add_result(self, data: Any, layer: Any, axis: int, *, name: str, **kwargs: Any) -> Any:

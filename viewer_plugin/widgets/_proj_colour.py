@@ -9,7 +9,14 @@ from typing import TYPE_CHECKING, Any, Callable
 import numpy as np
 from magicgui.widgets import CheckBox, ComboBox, FloatSlider, FloatSpinBox, Label, PushButton
 
-from ._proj_base import ProjectionWidget, downsampled, geometry_without, layer_data, preview_step
+from ._proj_base import (
+    ProjectionWidget,
+    downsampled,
+    geometry_without,
+    layer_data,
+    preview_step,
+    span_depth,
+)
 
 if TYPE_CHECKING:  # pragma: no cover
     import napari
@@ -239,6 +246,8 @@ class DepthColourWidget(ProjectionWidget):
         geometry["scale"] = tuple(s * step if keep[j] in others else s
                                   for j, s in enumerate(geometry["scale"]))
         rgb = np.asarray(result.rgb)
+        if layer.ndim >= 4:  # time/channel axes lined up with the source's
+            rgb, geometry = span_depth(rgb, layer, axis, geometry)
         name = f"{layer.name} depth colour (preview)"
         if self.preview_layer is not None and self.preview_layer in self.viewer.layers \
                 and self.preview_layer.data.shape == rgb.shape:
