@@ -8,7 +8,7 @@ it) and given as a fraction of the stack's bytes.
 Run on demand::
 
     python tests/benchmarks/bench_projections.py
-    pytest tests/benchmarks -s -o addopts=""
+    pytest tests/benchmarks -s
 
 Targets (issue 3): brightest_point <= 2.5x, depth_coded_projection <= 3x,
 blended_projection <= 5x np.max; extra peak memory <= 25 % of the stack.

@@ -2,7 +2,7 @@
 
 ``pyproject.toml`` ignores this folder in the default run. Run with::
 
-    pytest tests/benchmarks -s -o addopts=""
+    pytest tests/benchmarks -s
 
 (or ``python tests/benchmarks/bench_projections.py``). Files named
 ``bench_*.py`` are collected here as test modules.

@@ -198,23 +198,24 @@ def blend_rgb_update_lut(block, z0, table, offset, reverse, colours, colour, tra
     """As :func:`blend_update_lut`, emitting ``u * colours[z]``; planar RGB state (3, rows, cols)."""
     nz, nr, nc = block.shape
     for r in prange(nr):
+        k0 = colour[0, r]
+        k1 = colour[1, r]
+        k2 = colour[2, r]
         tr = trans[r]
-        emit = np.empty(nc, np.float64)
-        keep = np.empty(nc, np.float64)
         for k in range(nz):
             z = nz - 1 - k if reverse else k
             row = block[z, r]
+            c0 = colours[z0 + z, 0]
+            c1 = colours[z0 + z, 1]
+            c2 = colours[z0 + z, 2]
             for c in range(nc):
                 j = np.int64(row[c]) + offset
-                emit[c] = table[j, 0] * tr[c]
-                keep[c] = table[j, 1]
-            for q in range(3):
-                col = colour[q, r]
-                cq = colours[z0 + z, q]
-                for c in range(nc):
-                    col[c] += emit[c] * cq
-            for c in range(nc):
-                tr[c] *= keep[c]
+                t = tr[c]
+                e = t * table[j, 0]
+                k0[c] += e * c0
+                k1[c] += e * c1
+                k2[c] += e * c2
+                tr[c] = t * table[j, 1]
 
 
 @njit(**_OPTS)
