@@ -354,6 +354,11 @@ def test_dask_input_equals_numpy():
     np.testing.assert_array_equal(c.rgb, d.rgb)
     np.testing.assert_allclose(P.blended_projection(lazy, view="bottom"),
                                P.blended_projection(stack, view="bottom"), rtol=1e-6)
+    per_plane = da.from_array(stack, chunks=(1, 9, 10))  # small chunks are grouped
+    calls = []
+    f = P.brightest_point(per_plane, progress=lambda d, t: calls.append(t))
+    np.testing.assert_array_equal(f.depth, b.depth)
+    assert calls[-1] < 12
     lazy4 = da.from_array(np.stack([stack, stack[::-1]]), chunks=(1, 4, 9, 10))
     e = P.brightest_point(lazy4, axis=1)
     np.testing.assert_array_equal(e.depth[0], b.depth)

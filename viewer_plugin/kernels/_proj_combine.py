@@ -80,16 +80,33 @@ def _as_block(chunk: np.ndarray, index: tuple, kdtype: np.dtype) -> np.ndarray:
 def _chunk_bounds(v: Any) -> list[tuple[int, int]]:
     """(start, stop) of the z-chunks to fold, in increasing depth."""
     n = int(v.shape[0])
-    if is_dask(v):
-        edges = np.cumsum((0,) + tuple(v.chunks[0]))
-        return [(int(a), int(b)) for a, b in zip(edges[:-1], edges[1:])]
     plane = int(np.prod(v.shape[1:], dtype=np.int64))
+    if is_dask(v):
+        return _dask_bounds(tuple(v.chunks[0]), plane * v.dtype.itemsize)
     in_place = np.dtype(v.dtype) in _NATIVE and _blocks_contiguous(v)
     if in_place:
         target, itemsize = CHUNK_BYTES, v.dtype.itemsize
     else:
         target, itemsize = COPY_CHUNK_BYTES, kernel_dtype(v.dtype).itemsize
     return [(s.start, s.stop) for s in depth_chunks(n, plane * itemsize, target_bytes=target)]
+
+
+def _dask_bounds(chunks: tuple, plane_bytes: int) -> list[tuple[int, int]]:
+    """Whole dask z-chunks, neighbours grouped up to COPY_CHUNK_BYTES each.
+
+    A dask chunk is never split (that would read it several times); small
+    ones (e.g. one plane each) are computed together to save overhead.
+    """
+    bounds: list[tuple[int, int]] = []
+    start = stop = 0
+    for size in chunks:
+        if stop > start and (stop - start + size) * plane_bytes > COPY_CHUNK_BYTES:
+            bounds.append((start, stop))
+            start = stop
+        stop += int(size)
+    if stop > start:
+        bounds.append((start, stop))
+    return bounds
 
 
 def _blocks_contiguous(v: np.ndarray) -> bool:
