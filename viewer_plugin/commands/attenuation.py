@@ -1,8 +1,8 @@
 """``stackdepth attenuation INPUT``: measure (and optionally correct) the fall-off with depth.
 
 Prints the 1/e attenuation length with its 95 % interval and the fit quality;
-``-o`` writes the corrected stack (float32 OME-TIFF, same axes and voxel
-size), ``--report`` a JSON report (length, interval, model, r², offset, the
+``-o`` writes the corrected stack (float32 OME-TIFF with the voxel size;
+axes ZYX, or CZYX for several channels), ``--report`` a JSON report (length, interval, model, r², offset, the
 per-slice profile and gains, input, parameters, version, caution) and
 ``--plot`` a PNG of profile, model and gain. Files with channels are
 processed channel by channel (or only ``--channel N``). JSON has no
@@ -108,7 +108,7 @@ def run(args: argparse.Namespace) -> int:
     check_number(args.max_gain, name="--max-gain", low=1.0, allow_inf=True)
     stack = read_stack(args.input)
     channels, data, spatial = _channel_views(stack, args.channel)
-    if spatial != SPATIAL[-len(spatial):] or len(spatial) != 3:
+    if spatial != SPATIAL:
         raise CommandError(f"INPUT: expected a z-stack with axes ZYX, got axes {stack.axes}")
     scale = dict(zip(stack.axes, stack.scale))
     z_step = args.z_step if args.z_step is not None else float(scale[SPATIAL[axis]])
@@ -201,6 +201,7 @@ def _write_corrected(path: Path, stack: Any, data: Any, channels: list,
                      results: list[dict[str, Any]], args: argparse.Namespace) -> None:
     from ..io import write_ome_tiff
     from ..kernels import correct_attenuation
+    from ..kernels._validate import is_dask
     from ..kernels.attenuation import CAUTION
 
     corrected = []
@@ -210,12 +211,17 @@ def _write_corrected(path: Path, stack: Any, data: Any, channels: list,
             warnings.simplefilter("always")
             out = correct_attenuation(volume, result["fit"], max_gain=args.max_gain, progress=progress)
         result["notes"] += [str(w.message) for w in caught]
-        corrected.append(np.asarray(out))
+        corrected.append(out)  # a lazy dask array stays lazy: the writer streams it plane by plane
     names = [stack.channel_names[c] for c in channels if c is not None and c < len(stack.channel_names)]
     axes, scale = "ZYX", tuple(float(s) for a, s in zip(stack.axes, stack.scale) if a in "ZYX")
     pixels = corrected[0]
     if channels != [None]:
-        pixels = np.stack(corrected, axis=0)
+        if any(is_dask(c) for c in corrected):
+            import dask.array as da
+
+            pixels = da.stack([da.asarray(c) for c in corrected], axis=0)
+        else:
+            pixels = np.stack(corrected, axis=0)
         axes = "CZYX"
         scale = (1.0,) + scale
     metadata = {"attenuation_correction": {
