@@ -55,6 +55,12 @@ def _frozen(values: np.ndarray) -> np.ndarray:
     return out
 
 
+def _frozen_bool(values: np.ndarray) -> np.ndarray:
+    out = np.array(values, dtype=bool)
+    out.setflags(write=False)
+    return out
+
+
 @dataclass(frozen=True)
 class BleachingReport:
     """Result of :func:`estimate_bleaching`.
@@ -91,6 +97,9 @@ class BleachingReport:
     profile, model_profile : ndarray of float64
         Mean foreground signal per frame after subtracting the background,
         measured and modelled.
+    used : ndarray of bool
+        Frames that entered the fit (a depth check leaves out slices without
+        a clear foreground).
     offset : float
         Background level restored by corrections, ``(I - offset) * g + offset``:
         the given *offset*, or the level of up to 16 sampled frames.
@@ -123,6 +132,7 @@ class BleachingReport:
     plateau: float
     profile: np.ndarray = field(repr=False)
     model_profile: np.ndarray = field(repr=False)
+    used: np.ndarray = field(repr=False)
     offset: float
     background_sigma: float
     foreground_fraction: float
@@ -148,6 +158,7 @@ class BleachingReport:
         out = {name: getattr(self, name) for name in self.__dataclass_fields__}
         out["profile"] = self.profile.tolist()
         out["model_profile"] = self.model_profile.tolist()
+        out["used"] = self.used.tolist()
         out["components"] = [list(c) for c in self.components]
         return out
 
@@ -248,7 +259,8 @@ def _constant_report(n: int, level: float, interval: float, tolerance: float,
         rate_per_frame=0.0, rate_interval=(0.0, 0.0), half_life=math.inf, fraction_lost=0.0,
         fraction_lost_interval=(0.0, 0.0), exceeds_tolerance=False, tolerance=tolerance,
         r_squared=math.nan, model="none", model_choice="constant input: no model fitted",
-        components=(), plateau=0.0, profile=zeros, model_profile=zeros, offset=level,
+        components=(), plateau=0.0, profile=zeros, model_profile=zeros,
+        used=_frozen_bool(np.ones(n, dtype=bool)), offset=level,
         background_sigma=0.0, foreground_fraction=0.0, n_frames=n, interval=interval,
         axis_kind=axis_kind, caveat=DEPTH_CAVEAT if axis_kind == "depth" else "",
         summary=f"The series is constant over {n} {noun}: no change of signal, no bleaching.",
@@ -280,7 +292,8 @@ def _fit_report(signal: np.ndarray, used: np.ndarray, *, interval: float, tolera
         fraction_lost_interval=lost_ci, exceeds_tolerance=exceeds, tolerance=tolerance,
         r_squared=_r_squared(signal[used], best.rss), model=best.name, model_choice=why,
         components=components, plateau=plateau, profile=_frozen(signal),
-        model_profile=_frozen(model), offset=offset, background_sigma=sigma,
+        model_profile=_frozen(model), used=_frozen_bool(used), offset=offset,
+        background_sigma=sigma,
         foreground_fraction=fraction, n_frames=n, interval=interval, axis_kind=axis_kind,
         caveat=DEPTH_CAVEAT if axis_kind == "depth" else "",
         summary=bleaching_summary(fraction_lost=lost, half_life=half, n_frames=n,
@@ -365,11 +378,10 @@ def estimate_bleaching(
     ----------
     .. [1] N. Otsu, "A threshold selection method from gray-level histograms",
        IEEE Trans. SMC 9(1):62-66, 1979, doi:10.1109/TSMC.1979.4310076.
-    .. [2] L. Berglund, "The effect of non-uniform illumination on photobleaching
-       kinetics", J. Chem. Phys. 2004, doi:10.1063/1.1636726.
-    .. [3] K. Miura, "Bleach correction ImageJ plugin for compensating the
-       photobleaching of time-lapse sequences", F1000Research 9:1494, 2020,
-       doi:10.12688/f1000research.27171.1.
+    .. [2] A. J. Berglund, J. Chem. Phys. 2004, doi:10.1063/1.1636726 (non-uniform
+       illumination gives a sum of exponentials).
+    .. [3] K. Miura, F1000Research 9:1494, 2020, doi:10.12688/f1000research.27171.1
+       (ratio, fitted-decay and histogram-matching corrections).
 
     Examples
     --------

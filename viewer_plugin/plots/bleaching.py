@@ -67,7 +67,12 @@ def bleaching_figure(
     x, label = time_axis(report)
     first = float(report.model_profile[0]) if report.model_profile.size else 0.0
     scale = first if first > 0 else 1.0
-    ax.plot(x, report.profile / scale, "o", ms=4, color=MEASURED, label="measured foreground")
+    used = report.used
+    ax.plot(x[used], report.profile[used] / scale, "o", ms=4, color=MEASURED,
+            label="measured foreground")
+    if not used.all():
+        ax.plot(x[~used], report.profile[~used] / scale, "o", ms=4, mfc="none", color=LIMIT,
+                label="left out (no clear foreground)")
     ax.plot(x, report.model_profile / scale, "-", lw=2, color=MODEL,
             label=f"model ({report.model})")
     if truth_rate is not None and math.isfinite(truth_rate):
