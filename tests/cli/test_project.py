@@ -190,3 +190,13 @@ def test_real_nucleus_two_channels_need_channel(realdata, tmp_path):
     assert main(["project", str(source), "-o", str(out), "--channel", "0"]) == 0
     params = read_stack(out).metadata["projection"]
     assert params["z_step_um"] == pytest.approx(0.4994, rel=1e-3)  # the file's voxel size
+
+
+def test_uncalibrated_file_warns_about_z_step(tmp_path):
+    """A file without voxel size (steps 1 x 1 x 1) gets a warning naming --z-step; still exit 0."""
+    path = write_ome_tiff(tmp_path / "raw.ome.tif", _bars(), axes="ZYX", scale=(1.0, 1.0, 1.0))
+    result = run_cli("project", path, "-o", tmp_path / "o.ome.tif", "--method", "max")
+    assert result.returncode == 0, result.stderr
+    assert "--z-step" in result.stderr and "Traceback" not in result.stderr
+    calibrated = run_cli("project", path, "-o", tmp_path / "c.ome.tif", "--z-step", "0.5")
+    assert calibrated.returncode == 0 and "--z-step" not in calibrated.stderr

@@ -136,9 +136,9 @@ def _z_step(stack: Any, axes: str, scale: tuple[float, ...], args: argparse.Name
     if args.z_step is not None:
         return check_number(args.z_step, name="--z-step", low=0.0, low_open=True)
     step = float(scale[axes.index("Z")])
-    if step == 1.0:
-        logger.warning("%s: z-step is 1 um; if the file has no voxel size, pass --z-step",
-                       stack.path)
+    if all(float(scale[axes.index(a)]) == 1.0 for a in "ZYX"):
+        logger.warning("%s: voxel size 1 x 1 x 1 um, probably not in the file; pass --z-step "
+                       "(depths are in um only if the z-step is)", stack.path)
     return step
 
 

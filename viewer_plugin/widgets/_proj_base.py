@@ -231,6 +231,10 @@ class ProjectionWidget(Container):
             except (RuntimeError, TypeError, ValueError):
                 pass
         self._watch_layer(None)
+        self._on_close()
+
+    def _on_close(self) -> None:
+        """Hook: the dock widget is being destroyed (stop timers, previews)."""
 
     @property
     def layer(self) -> Any:

@@ -233,6 +233,10 @@ class DepthColourWidget(ProjectionWidget):
             worker.start()
         return worker
 
+    def _on_close(self) -> None:
+        self._timer.stop()
+        self._preview_pending = False
+
     def _preview_done(self) -> None:
         self.preview_worker = None
         if self._preview_pending:
@@ -271,9 +275,11 @@ class DepthColourWidget(ProjectionWidget):
         if self.result is None:
             return
         base = self.result_info.get("source_layer", "projection")
-        path, _filter = QFileDialog.getSaveFileName(
+        path, chosen = QFileDialog.getSaveFileName(
             self.native, "Export depth-colour figure", f"{base} depth colour.png",
             "PNG (*.png);;TIFF (*.tif *.tiff);;PDF (*.pdf)")
+        if path and Path(path).suffix.lower() not in (".png", ".tif", ".tiff", ".pdf"):
+            path += {"T": ".tif", "P": ".pdf"}.get(chosen[:1], ".png")
         if path:
             # the dialog already asked whether to replace an existing figure
             self.export_figure(path, overwrite=Path(path).exists())
