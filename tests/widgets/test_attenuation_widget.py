@@ -83,6 +83,14 @@ def test_mask_from_shapes_and_bad_input(demo_viewer, qtbot, errors):
     shapes = viewer.add_shapes([np.array([[0, 0], [0, 60], [60, 60], [60, 0]]) * layer.scale[1]],
                                shape_type="rectangle", ndim=2)
     widget.mask_combo.value = shapes
+    from viewer_plugin.widgets.attenuation import shapes_mask
+
+    lateral = shapes_mask(shapes, layer, 0)
+    assert lateral.shape == layer.data.shape[1:] and 0.15 < lateral.mean() < 0.3  # 60 x 60 of 128 x 128
+    on_grid = viewer.add_shapes([np.array([[0, 0], [0, 60], [60, 60], [60, 0]])], shape_type="rectangle",
+                                ndim=2, scale=layer.scale[1:])
+    np.testing.assert_array_equal(shapes_mask(on_grid, layer, 0)[5:55, 5:55], True)
+    assert abs(int(shapes_mask(on_grid, layer, 0).sum()) - int(lateral.sum())) < 300
     _run(qtbot, widget, widget.fit)
     assert widget.fit_result is not None
     # a 2-D layer is rejected with a notification, not an exception

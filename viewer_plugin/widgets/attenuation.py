@@ -64,11 +64,23 @@ def layer_pixels(layer: Any) -> Any:
 
 
 def shapes_mask(shapes: Any, image: Any, axis: int) -> np.ndarray:
-    """A lateral mask (the image's shape without *axis*) from a shapes layer, True inside."""
+    """A lateral mask (the image's shape without *axis*) from a shapes layer, True inside.
+
+    A 2-D shapes layer on the image's lateral grid is rasterised by napari
+    (``Shapes.to_masks``); otherwise each closed shape's vertices are taken
+    through world coordinates into the image's pixels and filled here.
+    """
     from skimage.draw import ellipse, polygon
 
     lateral = [i for i in range(image.ndim) if i != axis]
     shape2d = tuple(int(image.data.shape[i]) for i in lateral)
+    same_grid = (shapes.ndim == 2
+                 and np.allclose(shapes.scale, [image.scale[i] for i in lateral])
+                 and np.allclose(shapes.translate, [image.translate[i] for i in lateral]))
+    if same_grid and len(shapes.data):  # napari's own rasterisation on the image's lateral grid
+        mask = np.asarray(shapes.to_masks(mask_shape=shape2d)).any(axis=0)
+        if mask.any():
+            return mask
     mask = np.zeros(shape2d, dtype=bool)
     for vertices, kind in zip(shapes.data, shapes.shape_type):
         world = np.array([shapes.data_to_world(v) for v in np.asarray(vertices)])
