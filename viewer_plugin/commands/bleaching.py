@@ -18,8 +18,6 @@ import sys
 from pathlib import Path
 from typing import Any
 
-import numpy as np
-
 from .. import __version__
 from ._common import (
     EXIT_OK,
@@ -99,11 +97,14 @@ def _outputs(args: argparse.Namespace) -> dict[str, Path | None]:
     return out
 
 
-def _note(text: str) -> None:
-    print(f"stackdepth: note: {text}", file=sys.stderr)
+def _print_notes(notes: list[str]) -> None:
+    """Notes go to stderr only once the command succeeded (an error stays one line)."""
+    for text in notes:
+        print(f"stackdepth: note: {text}", file=sys.stderr)
 
 
-def select_channel(stack: Any, channel: int | None, *, name: str = "INPUT") -> tuple[Any, str, tuple]:
+def select_channel(stack: Any, channel: int | None, notes: list[str], *,
+                   name: str = "INPUT") -> tuple[Any, str, tuple]:
     """The data without its C axis (one channel), its axes and scale."""
     axes, data, scale = stack.axes, stack.data, tuple(stack.scale)
     if "S" in axes:
@@ -117,7 +118,7 @@ def select_channel(stack: Any, channel: int | None, *, name: str = "INPUT") -> t
     if channel is None:
         channel = 0
         if n > 1:
-            _note(f"{name} has {n} channels; checking channel 0 (choose with --channel N)")
+            notes.append(f"{name} has {n} channels; checking channel 0 (choose with --channel N)")
     if not 0 <= channel < n:
         raise CommandError(f"--channel: expected an index from 0 to {n - 1}, got {channel}")
     index = [slice(None)] * data.ndim
@@ -126,7 +127,8 @@ def select_channel(stack: Any, channel: int | None, *, name: str = "INPUT") -> t
     return data[tuple(index)], "".join(axes[i] for i in keep), tuple(scale[i] for i in keep)
 
 
-def _series_axis(data: Any, axes: str, scale: tuple, wanted: str | None) -> tuple[Any, str, tuple, str]:
+def _series_axis(data: Any, axes: str, scale: tuple, wanted: str | None,
+                 notes: list[str]) -> tuple[Any, str, tuple, str]:
     """Pick the acquisition axis; a depth check of a time series uses its first time point."""
     n_time = data.shape[axes.index("T")] if "T" in axes else 0
     kind = wanted or ("t" if n_time > 1 else "z")
@@ -139,7 +141,7 @@ def _series_axis(data: Any, axes: str, scale: tuple, wanted: str | None) -> tupl
         if n_time:
             t = axes.index("T")
             if n_time > 1:
-                _note(f"INPUT has {n_time} time points; checking time point 0 along z")
+                notes.append(f"INPUT has {n_time} time points; checking time point 0 along z")
             index = [slice(None)] * data.ndim
             index[t] = 0
             data = data[tuple(index)]
@@ -161,12 +163,17 @@ def run(args: argparse.Namespace) -> int:
     stack = read_stack(args.input)
     if args.reverse is not None:
         return _run_two_pass(args, stack, tolerance, outputs)
-    data, axes, scale = select_channel(stack, args.channel)
-    data, axes, scale, kind = _series_axis(data, axes, scale, args.axis)
+    notes: list[str] = []
+    data, axes, scale = select_channel(stack, args.channel, notes)
+    data, axes, scale, kind = _series_axis(data, axes, scale, args.axis, notes)
     letter = "T" if kind == "t" else "Z"
     axis = axes.index(letter)
     interval = args.interval if args.interval is not None else float(scale[axis])
     interval_from = "--interval" if args.interval is not None else "file"
+    if args.interval is None and interval == 1.0:
+        unit = "s between time points" if kind == "t" else "um between slices"
+        notes.append(f"the file gives a step of 1 {unit} (also the default when it has none); "
+                     "pass --interval if that is not right")
     report = _estimate(data, axis, kind, interval, tolerance)
     if outputs["output"] is not None:
         _write_corrected(outputs["output"], data, axes, scale, report, axis, args)
@@ -183,6 +190,7 @@ def run(args: argparse.Namespace) -> int:
         if truth:
             payload["demo_truth"] = truth
         write_json(outputs["report"], payload)
+    _print_notes(notes)
     print(report.summary)
     if report.caveat:
         print(f"caveat: {report.caveat}")
@@ -248,8 +256,9 @@ def _print_written(outputs: dict[str, Path | None]) -> None:
         print(f"caution: {CAUTION}")
 
 
-def _one_stack(stack: Any, channel: int | None, name: str) -> tuple[Any, str, tuple]:
-    data, axes, scale = select_channel(stack, channel, name=name)
+def _one_stack(stack: Any, channel: int | None, name: str,
+               notes: list[str]) -> tuple[Any, str, tuple]:
+    data, axes, scale = select_channel(stack, channel, notes, name=name)
     if "T" in axes:
         t = axes.index("T")
         if data.shape[t] != 1:
@@ -270,9 +279,10 @@ def _run_two_pass(args: argparse.Namespace, stack: Any, tolerance: float,
 
     if args.axis == "t":
         raise CommandError("--axis t: expected z with --reverse (two passes over one z-stack)")
-    forward, axes, scale = _one_stack(stack, args.channel, "INPUT")
+    notes: list[str] = []
+    forward, axes, scale = _one_stack(stack, args.channel, "INPUT", notes)
     second = read_stack(args.reverse)
-    reverse, axes_r, _ = _one_stack(second, args.channel, "--reverse")
+    reverse, axes_r, _ = _one_stack(second, args.channel, "--reverse", notes)
     if axes_r != axes or tuple(reverse.shape) != tuple(forward.shape):
         raise CommandError(f"--reverse: expected the shape {tuple(forward.shape)} and axes {axes} "
                            f"of INPUT, got {tuple(reverse.shape)} and {axes_r}")
@@ -295,6 +305,7 @@ def _run_two_pass(args: argparse.Namespace, stack: Any, tolerance: float,
         if truth:
             payload["demo_truth"] = truth
         write_json(outputs["report"], payload)
+    _print_notes(notes)
     print(f"{result.summary} {verdict}")
     print(f"caveat: {result.caveat}")
     _print_written(outputs)
