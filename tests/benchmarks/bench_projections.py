@@ -22,12 +22,13 @@ import time
 import tracemalloc
 from typing import Callable
 
+import numba
 import numpy as np
 
 from viewer_plugin.kernels import projections as P
 
 SHAPE = (64, 1024, 1024)
-REPEATS = 7
+REPEATS = 9
 TIME_TARGETS = {
     "brightest_point": 2.5,
     "depth_coded_projection[brightest]": 3.0,
@@ -104,7 +105,7 @@ def report(results: dict[str, dict[str, float]]) -> str:
     lines = [
         f"date {time.strftime('%Y-%m-%d %H:%M UTC', time.gmtime())}; "
         f"{platform.processor() or platform.machine()}, {os.cpu_count()} cores; "
-        f"numpy {np.__version__}; stack {SHAPE} uint16",
+        f"numpy {np.__version__}; numba threads {numba.get_num_threads()}; stack {SHAPE} uint16",
         "",
         "| kernel | seconds | np.max seconds | ratio | target | extra peak memory |",
         "|---|---|---|---|---|---|",
