@@ -178,7 +178,8 @@ def _model_gain(model: str, depth: np.ndarray, fg: Foreground, bandwidth: float)
     """Gain and model profile of one pass (the histogram model iterates on the exponential)."""
     if model == "smooth":
         log_model = models.smooth_log_profile(depth, fg.signal, fg.sem, bandwidth=bandwidth)
-        return np.exp(log_model[0] - log_model), np.exp(log_model)
+        gain = np.exp(log_model[0] - log_model)
+        return np.where(np.isfinite(gain), gain, 1.0), np.exp(log_model)
     fit = models.fit_exponential(depth, fg.signal, fg.sem)
     if not math.isfinite(fit.rate):
         return np.ones_like(depth), np.full(depth.shape, np.nan)
@@ -212,7 +213,7 @@ def _iterate(above: np.ndarray, noise: np.ndarray, depth: np.ndarray, model: str
 
 
 def _findings(fit: models.ExponentialFit, fg: Foreground, length: float,
-              interval: tuple[float, float], converged: bool) -> list[str]:
+              interval: tuple[float, float], converged: bool, model: str) -> list[str]:
     notes = []
     if not converged:
         notes.append("the foreground selection did not settle; the estimate may be unstable")
@@ -223,8 +224,10 @@ def _findings(fit: models.ExponentialFit, fg: Foreground, length: float,
         notes.append("the signal does not decrease with depth: the exponential model applies "
                      "no correction")
     if math.isfinite(fit.r_squared) and fit.r_squared < 0.9:
+        advice = ("the smooth model's gains follow the measured profile instead" if model == "smooth"
+                  else "try the smooth model")
         notes.append(f"the exponential model explains only {fit.r_squared:.0%} of the depth variation: "
-                     "the stack may not decay exponentially (try the smooth model)")
+                     f"the stack may not decay exponentially ({advice})")
     if math.isfinite(length) and (math.isinf(interval[1]) or interval[1] > 2 * interval[0]):
         notes.append("the 95 % interval on the length is wide: the length is poorly determined")
     return notes
@@ -381,7 +384,7 @@ def estimate_attenuation(
     if model == "histogram":
         maps = models.quantile_maps(sample, 0)
         gain = models.equivalent_gain(maps[0], maps[1], offset)
-    notes = _findings(exp_fit, fg, length, interval, converged)
+    notes = _findings(exp_fit, fg, length, interval, converged, model)
     notes += _saturation_note(stack.dtype, sample, fg)
     if not converged:
         warnings.warn(f"estimate_attenuation: {notes[0]}", AttenuationWarning, stacklevel=2)
