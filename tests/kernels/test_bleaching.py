@@ -330,3 +330,13 @@ def test_correction_of_a_constant_series_is_the_identity():
     data = np.full((5, 3, 8, 8), 9, dtype=np.uint16)
     out = correct_bleaching(data, estimate_bleaching(data))
     np.testing.assert_array_equal(out, 9.0)
+
+
+def test_nan_voxels_and_a_nan_frame_are_ignored():
+    """NaN marks missing data: ignored voxel by voxel, and a frame without values is left out."""
+    data = series_with(first_order(0.04, 12), seed=None)
+    data[:, :, 0, 0] = np.nan
+    data[5] = np.nan
+    report = estimate_bleaching(data)
+    assert report.rate_per_frame == pytest.approx(0.04, rel=1e-6)
+    assert not report.used[5] and report.used.sum() == 11

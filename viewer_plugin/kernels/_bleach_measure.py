@@ -128,7 +128,11 @@ def masked_profile(
             here = mask if mask is not None else otsu_mask(frame)
             if not here.any():
                 here = np.ones(frame.shape, dtype=bool)
-            out[part.start + j] = float(frame[here].mean(dtype=np.float64))
+            values = frame[here].astype(np.float64, copy=False)
+            finite = np.isfinite(values) if values.dtype.kind == "f" else None
+            if finite is not None and not finite.all():
+                values = values[finite]
+            out[part.start + j] = float(values.mean()) if values.size else np.nan
             counts[part.start + j] = np.count_nonzero(here) / here.size
             background = background_level(frame)
             levels[part.start + j] = background.level

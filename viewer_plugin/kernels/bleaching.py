@@ -417,20 +417,22 @@ def estimate_bleaching(
     raw, levels, fractions, sigmas = masked_profile(moved, mask, progress=progress, done=1,
                                                     total=total)
     signal = raw - (levels if offset is None else level)
-    if np.ptp(raw) == 0 and background.sigma == 0:
+    finite = np.isfinite(signal)
+    if np.count_nonzero(finite) < 2:
+        fail("series", "at least 2 frames with finite values", f"<{int(np.count_nonzero(finite))}>")
+    if np.ptp(raw[finite]) == 0 and background.sigma == 0:
         return _constant_report(n, level, interval, tolerance, axis_kind)
-    head = float(np.max(signal))
+    head = float(np.max(signal[finite]))
     if not head > MIN_CONTRAST * background.sigma:
         fail("series", f"a foreground at least {MIN_CONTRAST} background standard deviations "
              "above the background in some frame", f"<at most {head:.4g} above a background of "
              f"{level:.4g} (sd {background.sigma:.3g})>",
              hint="the series looks like background only; pass a mask or check the layer")
-    used = np.ones(n, dtype=bool)
+    used = finite
     if axis_kind == "depth" and mask is None:
         # slices without a clear foreground (above or below the tissue) hold only noise
-        used = signal > MIN_CONTRAST * np.where(np.isfinite(sigmas), sigmas, 0.0)
-        if np.count_nonzero(used) < 2:
-            used = np.ones(n, dtype=bool)
+        clear = finite & (signal > MIN_CONTRAST * np.where(np.isfinite(sigmas), sigmas, 0.0))
+        used = clear if np.count_nonzero(clear) >= 2 else finite
     return _fit_report(signal, used, interval=interval, tolerance=tolerance, axis_kind=axis_kind,
                        offset=level, sigma=background.sigma, fraction=float(np.mean(fractions)))
 
