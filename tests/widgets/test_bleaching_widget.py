@@ -144,3 +144,16 @@ def test_time_axis_on_a_stack_without_one_is_a_notification(make_napari_viewer, 
     widget.axis_kind.value = "time"
     assert widget.check(start_thread=False) is None
     assert errors and "time axis" in errors[0]
+
+
+def test_a_layer_without_units_gets_an_interval_hint(make_napari_viewer):
+    from viewer_plugin.widgets.bleaching import BleachingWidget
+
+    viewer = make_napari_viewer(show=True)
+    viewer.add_image(_series().data, name="plain")          # no scale, no units
+    widget = BleachingWidget(viewer)
+    assert widget.interval.value == 1.0
+    assert "check it" in widget.interval_hint.value
+    _add(viewer, _series())
+    widget.layer_combo.value = viewer.layers["fibre slab series"]
+    assert widget.interval.value == pytest.approx(30.0) and widget.interval_hint.value == ""

@@ -106,6 +106,7 @@ class BleachingWidget(Container):
                                   choices=[("time (time points)", "time"),
                                            ("z (slices of one stack)", "depth")])
         self.interval = FloatSpinBox(label="Interval (s)", value=1.0, min=1e-6, max=1e7, step=1.0)
+        self.interval_hint = _wrap(Label(value=""))
         self.tolerance = FloatSpinBox(label="Tolerance (% loss)", value=10.0, min=0.1, max=99.0,
                                       step=1.0, tooltip=TOLERANCE_NOTE)
         self.tolerance_note = _wrap(Label(value=TOLERANCE_NOTE))
@@ -121,7 +122,8 @@ class BleachingWidget(Container):
         self.verdict = _wrap(Label(value=""))
         self.caveat = _wrap(Label(value=""))
         self.caution = _wrap(Label(value=CAUTION))
-        self.extend([self.mode, self.layer_combo, self.axis_kind, self.interval, self.tolerance,
+        self.extend([self.mode, self.layer_combo, self.axis_kind, self.interval,
+                     self.interval_hint, self.tolerance,
                      self.tolerance_note, self.method, self.forward_combo, self.reverse_combo,
                      self.two_pass_help, self.check_button, self.correct_button,
                      self.cancel_button, self.verdict, self.caveat, self.caution])
@@ -188,8 +190,8 @@ class BleachingWidget(Container):
     # ------------------------------------------------------------ reacting
     def _on_mode(self, mode: str) -> None:
         single = mode == SINGLE
-        for widget in (self.layer_combo, self.axis_kind, self.interval, self.method,
-                       self.correct_button):
+        for widget in (self.layer_combo, self.axis_kind, self.interval, self.interval_hint,
+                       self.method, self.correct_button):
             widget.visible = single
         for widget in (self.forward_combo, self.reverse_combo, self.two_pass_help):
             widget.visible = not single
@@ -222,6 +224,15 @@ class BleachingWidget(Container):
             self.interval.label = "z-step (\u00b5m)"
             value = float(layer.scale[depth_axis_of(layer)])
         self.interval.value = float(value) if value and value > 0 else 1.0
+        axis = time_axis_of(layer) if self.axis_kind.value == "time" else depth_axis_of(layer)
+        units = getattr(layer, "units", None)
+        unit = str(units[axis]) if units is not None and axis is not None else "pixel"
+        if self.interval.value == 1.0 and unit in ("pixel", "px", ""):
+            what = "1 s between time points" if self.axis_kind.value == "time" else "1 \u00b5m z-step"
+            self.interval_hint.value = (f"The layer gives {what} (also the default when a file "
+                                        "has none): check it and type the real value.")
+        else:
+            self.interval_hint.value = ""
 
     def _set_running(self, running: bool) -> None:
         self.check_button.enabled = not running
