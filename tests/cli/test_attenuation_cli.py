@@ -106,3 +106,24 @@ def test_missing_file_bad_zstep_bad_axis_bad_channel(slab_file, tmp_path):
     assert_one_line_error(run_cli(str(path), "--axis", "t"), "--axis")
     assert_one_line_error(run_cli(str(path), "--channel", "3"), "--channel")
     assert_one_line_error(run_cli(str(path), "--max-gain", "0.5"), "--max-gain")
+
+
+def test_time_series_is_refused_and_plots_per_channel(tmp_path, capsys):
+    series = np.zeros((3, 8, 32, 32), np.uint16)
+    path = tmp_path / "series.ome.tif"
+    write_ome_tiff(path, series, axes="TZYX", scale=(30.0, 1.0, 0.3, 0.3))
+    result = run_cli(str(path))
+    assert_one_line_error(result, "time points", "bleaching")
+    demo = fibre_slab(seed=0, shape=(30, 96, 96))
+    two = tmp_path / "two.ome.tif"
+    write_ome_tiff(two, np.stack([demo.data, demo.data], axis=0), axes="CZYX", scale=(1.0, 1.0, 0.3, 0.3))
+    plot = tmp_path / "p.png"
+    assert main(["attenuation", str(two), "--plot", str(plot), "--model", "histogram",
+                 "-o", str(tmp_path / "c.ome.tif")]) == 0
+    assert (tmp_path / "p_c0.png").exists() and (tmp_path / "p_c1.png").exists()
+    out = read_stack(tmp_path / "c.ome.tif")
+    assert out.axes == "CZYX" and out.data.dtype == np.float32
+    capsys.readouterr()
+    # the per-channel plots are not overwritten either
+    result = run_cli(str(two), "--plot", str(plot))
+    assert_one_line_error(result, "--plot", "--overwrite")
