@@ -157,3 +157,20 @@ def test_a_layer_without_units_gets_an_interval_hint(make_napari_viewer):
     _add(viewer, _series())
     widget.layer_combo.value = viewer.layers["fibre slab series"]
     assert widget.interval.value == pytest.approx(30.0) and widget.interval_hint.value == ""
+
+
+def test_cancel_stops_the_check_without_a_result(make_napari_viewer, qtbot, monkeypatch):
+    import napari.utils.notifications as notes
+
+    from viewer_plugin.widgets.bleaching import BleachingWidget
+
+    infos: list[str] = []
+    monkeypatch.setattr(notes, "show_info", infos.append)
+    viewer = make_napari_viewer(show=True)
+    _add(viewer, _series())
+    widget = BleachingWidget(viewer)
+    worker = widget.check(start_thread=False)
+    widget.task._cancel_requested = True   # what Cancel sets: the next progress call raises Cancelled
+    _run(qtbot, widget, worker)
+    assert widget.report is None
+    assert any("cancelled" in text for text in infos)
