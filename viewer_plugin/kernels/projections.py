@@ -171,7 +171,7 @@ def _brightness(vals: np.ndarray, lo: float, hi: float, gamma: float) -> np.ndar
     out -= np.float32(lo)
     out *= np.float32(1.0 / (hi - lo))
     np.clip(out, 0.0, 1.0, out=out)
-    if out.dtype.kind == "f" and vals.dtype.kind == "f":
+    if vals.dtype.kind == "f":
         out[np.isnan(out)] = 0.0
     if gamma != 1.0:
         np.power(out, np.float32(gamma), out=out)
@@ -352,7 +352,8 @@ def depth_coded_projection(
         colour-vision deficiency).
     depth_range : (float, float), optional
         (d0, d1) in µm mapped to the ends of the colour table; default the
-        first to the last slice, ``(0, (n - 1) * z_step)``.
+        first to the last slice, ``(0, (n - 1) * z_step)`` (``(0, z_step)``
+        for a single slice).
     clim : (float, float), optional
         (lo, hi) display limits in input units. Default: the 0.1 and 99.9
         percentiles of the stack, **estimated from a strided subsample**
@@ -438,7 +439,7 @@ def depth_coded_projection(
 
 # --- blended (emission-absorption) projection ------------------------------------
 
-def blend_table(kdtype: np.dtype, lo: float, hi: float, kappa: float) -> np.ndarray:
+def _blend_table(kdtype: np.dtype, lo: float, hi: float, kappa: float) -> np.ndarray:
     """Per-integer-value ``(a * u, 1 - a)`` for uint8/uint16 input (float64)."""
     x = np.arange(2 ** (8 * kdtype.itemsize), dtype=np.float64)
     u = np.clip((x - lo) / (hi - lo), 0.0, 1.0)
@@ -456,7 +457,7 @@ def _blend_fold(v: Any, lo: float, hi: float, kappa: float, reverse: bool,
     rgb_shape = others[:-2] + (3,) + others[-2:]
     colour = np.zeros(others if colours is None else rgb_shape, np.float64)
     trans = np.ones(others, np.float64)
-    table = blend_table(kdtype, lo, hi, kappa) if kdtype.kind == "u" else None
+    table = _blend_table(kdtype, lo, hi, kappa) if kdtype.kind == "u" else None
     scale = 1.0 / (hi - lo)
 
     def fold(block: np.ndarray, z0: int, index: tuple) -> None:
@@ -592,7 +593,9 @@ def warm_up() -> None:
 
     Raises
     ------
-    None
+    Exception
+        Only if numba cannot compile on this machine (a broken installation);
+        never for user input.
 
     References
     ----------
