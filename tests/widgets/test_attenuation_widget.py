@@ -100,3 +100,21 @@ def test_mask_from_shapes_and_bad_input(demo_viewer, qtbot, errors):
     widget.mask_combo.value = None
     _run(qtbot, widget, widget.fit)
     assert errors and "expected structure" in errors[-1]
+
+
+def test_cancel_stops_the_fit(demo_viewer, qtbot, monkeypatch):
+    from viewer_plugin.widgets.attenuation import AttenuationWidget
+    import napari.utils.notifications as notes
+
+    infos: list[str] = []
+    monkeypatch.setattr(notes, "show_info", infos.append)
+    viewer, _ = demo_viewer
+    widget = AttenuationWidget(viewer)
+    worker = widget.fit(start_thread=False)
+    widget.task.cancel()  # what the Cancel button does; the kernel stops at its first chunk
+    with qtbot.waitSignal(worker.finished, timeout=WAIT_MS):
+        worker.start()
+    qtbot.waitUntil(lambda: not widget.task.running, timeout=WAIT_MS)
+    assert widget.fit_result is None  # no result shown from a cancelled fit
+    assert not widget.correct_button.enabled
+    assert all("error" not in i.lower() for i in infos)
