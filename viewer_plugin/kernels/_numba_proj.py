@@ -23,7 +23,8 @@ Nothing here validates input: the public functions in :mod:`.projections` do.
 from __future__ import annotations
 
 import numpy as np
-from numba import njit, prange
+from numba import njit, prange, types
+from numba.extending import overload
 
 __all__ = [
     "brightest_update",
@@ -38,6 +39,18 @@ __all__ = [
 ]
 
 _OPTS = dict(parallel=True, cache=True, nogil=True)
+
+
+def _top(x, y):
+    """Larger of x and y, NaN ignored (numpy.fmax); plain max for integers."""
+    return np.fmax(x, y)
+
+
+@overload(_top, inline="always")
+def _top_impl(x, y):
+    if isinstance(x, types.Float) or isinstance(y, types.Float):
+        return lambda x, y: np.fmax(x, y)
+    return lambda x, y: max(x, y)  # integer max vectorises better than fmax
 
 
 @njit(**_OPTS)
@@ -62,19 +75,8 @@ def brightest_update(block, z0, vals, idx):
                 take = (x > cur) | ((i < 0) & (x == x))
                 # branch-free blends: a conditional store would become a slow
                 # masked store (vmaskmov) once vectorised
-                v[c] = np.fmax(x, cur)
+                v[c] = _top(x, cur)
                 ix[c] = i ^ ((i ^ zz) & -np.int32(take))
-
-
-@njit(cache=True, nogil=True, inline="always")
-def _normalise_row(row, lo, scale, out):
-    """out = clip((row - lo) * scale, 0, 1) in float32; NaN -> 0."""
-    lo32 = np.float32(lo)
-    sc32 = np.float32(scale)
-    for c in range(row.shape[0]):
-        u = (np.float32(row[c]) - lo32) * sc32
-        u = u if u > np.float32(0.0) else np.float32(0.0)
-        out[c] = u if u < np.float32(1.0) else np.float32(1.0)
 
 
 #: Planes summed in float32 before the partial sums go into float64 state.
@@ -88,14 +90,14 @@ def weighted_update(block, z0, lo, scale, vals, sum_u, sum_uz):
     ``vals`` starts at the dtype's minimum for integers and NaN for floats.
     u is float32; groups of up to 16 planes are summed in float32 (exact to
     ~1e-6 relative) and then added to the float64 accumulators.
-    Each row is swept in short separate loops so that each one vectorises.
     """
     nz, nr, nc = block.shape
+    lo32 = np.float32(lo)
+    sc32 = np.float32(scale)
     for r in prange(nr):
         v = vals[r]
         su = sum_u[r]
         suz = sum_uz[r]
-        ub = np.empty(nc, np.float32)
         gu = np.empty(nc, np.float32)
         guz = np.empty(nc, np.float32)
         for g0 in range(0, nz, _GROUP):
@@ -105,11 +107,13 @@ def weighted_update(block, z0, lo, scale, vals, sum_u, sum_uz):
                 row = block[z, r]
                 zf = np.float32(z - g0)
                 for c in range(nc):
-                    v[c] = np.fmax(row[c], v[c])
-                _normalise_row(row, lo, scale, ub)
-                for c in range(nc):
-                    gu[c] += ub[c]
-                    guz[c] += ub[c] * zf
+                    x = row[c]
+                    v[c] = _top(x, v[c])
+                    u = (np.float32(x) - lo32) * sc32
+                    u = u if u > np.float32(0.0) else np.float32(0.0)
+                    u = u if u < np.float32(1.0) else np.float32(1.0)
+                    gu[c] += u
+                    guz[c] += u * zf
             base = np.float64(z0 + g0)
             for c in range(nc):
                 su[c] += gu[c]
@@ -143,7 +147,7 @@ def tinted_update(block, z0, lo, scale, colours, vals, idx, tint):
                 cur = v[c]
                 i = ix[c]
                 take = (x > cur) | ((i < 0) & (x == x))
-                v[c] = np.fmax(x, cur)
+                v[c] = _top(x, cur)
                 ix[c] = i ^ ((i ^ zz) & -np.int32(take))
                 u = (np.float32(x) - lo32) * sc32
                 u = u if u > np.float32(0.0) else np.float32(0.0)
