@@ -190,9 +190,10 @@ class BleachingWidget(Container):
     # ------------------------------------------------------------ reacting
     def _on_mode(self, mode: str) -> None:
         single = mode == SINGLE
-        for widget in (self.layer_combo, self.axis_kind, self.interval, self.interval_hint,
-                       self.method, self.correct_button):
+        for widget in (self.layer_combo, self.axis_kind, self.interval, self.method,
+                       self.correct_button):
             widget.visible = single
+        self.interval_hint.visible = single and bool(self.interval_hint.value)
         for widget in (self.forward_combo, self.reverse_combo, self.two_pass_help):
             widget.visible = not single
         if not single:
@@ -233,6 +234,7 @@ class BleachingWidget(Container):
                                         "has none): check it and type the real value.")
         else:
             self.interval_hint.value = ""
+        self.interval_hint.visible = bool(self.interval_hint.value) and self.mode.value == SINGLE
 
     def _set_running(self, running: bool) -> None:
         self.check_button.enabled = not running
