@@ -546,7 +546,8 @@ def _two_pass_fits(fwd: np.ndarray, rev: np.ndarray, valid: np.ndarray,
     rate_ci = (float(-math.expm1(b + t_rate * se_b)), float(-math.expm1(b - t_rate * se_b)))
     unbleached = fwd / np.exp(b * i)
     c, se_c, r2_len = _with_intercept(i[valid] * z_step, np.log(unbleached[valid]))
-    se_total = math.sqrt(se_c**2 + (i[valid].size > 0) * (se_b / z_step) ** 2)
+    # u = ln S_fwd - i b: the slope on z inherits the uncertainty of b / z_step
+    se_total = math.sqrt(se_c**2 + (se_b / z_step) ** 2)
     t_len = float(stats.t.ppf(0.975, max(1, np.count_nonzero(valid) - 2)))
     length = -1.0 / c if c < 0 else math.inf
     steep, shallow = c - t_len * se_total, c + t_len * se_total
