@@ -40,8 +40,9 @@ def sample_background(moved: Any) -> Background:
     """Background of up to 16 evenly spaced frames of a depth-first array."""
     n = int(moved.shape[0])
     picks = np.unique(np.linspace(0, n - 1, min(n, _BACKGROUND_FRAMES)).round().astype(int))
-    sample = _as_numpy(moved[picks])
-    return background_level(sample if sample.ndim >= 2 else sample[None])
+    # stride first (a view), then pick frames: only the small sample is copied or computed
+    sample = _as_numpy(moved[..., ::4, ::4][picks])
+    return background_level(sample, step=1)
 
 
 def _strided_sample(image: np.ndarray) -> np.ndarray:
