@@ -8,6 +8,7 @@ layers; they never change the source layer or its data.
 
 from __future__ import annotations
 
+import logging
 import threading
 from typing import TYPE_CHECKING, Any, Callable
 
@@ -20,6 +21,8 @@ from ._runner import BackgroundTask
 
 if TYPE_CHECKING:  # pragma: no cover
     import napari
+
+logger = logging.getLogger(__name__)
 
 #: Default maximum number of voxels of a preview (downsampled copy).
 PREVIEW_VOXELS = 8_000_000
@@ -43,7 +46,7 @@ def start_warm_up() -> None:
             try:
                 warm()
             except Exception:  # noqa: BLE001 - a failed warm-up only costs time later
-                pass
+                logger.debug("projection kernels warm-up failed", exc_info=True)
 
     threading.Thread(target=run, name="stackdepth-warm-up", daemon=True).start()
 

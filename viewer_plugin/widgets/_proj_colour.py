@@ -234,8 +234,11 @@ class DepthColourWidget(ProjectionWidget):
         return worker
 
     def _on_close(self) -> None:
-        self._timer.stop()
         self._preview_pending = False
+        try:
+            self._timer.stop()
+        except RuntimeError:  # the Qt timer is already gone (application shutting down)
+            pass
 
     def _preview_done(self) -> None:
         self.preview_worker = None
