@@ -39,11 +39,10 @@ def apply_gains(series: Any, gains: np.ndarray, offset: float, *, axis: int, pro
     plane = plane_nbytes(tuple(moved_in.shape), moved_in.dtype)
     n = moved_in.shape[0]
     for part in depth_chunks(n, plane):
-        block = moved_in[part].astype(np.float32)
-        block -= off
+        block = moved_out[part]                      # a view into the output: no temporaries
+        np.subtract(moved_in[part], off, out=block, dtype=np.float32, casting="unsafe")
         block *= flat_gains[part].reshape((-1,) + (1,) * (block.ndim - 1))
         block += off
-        moved_out[part] = block
         report_progress(progress, part.stop, n)
     return out
 
