@@ -35,7 +35,6 @@ __all__ = [
     "blend_rgb_update_lut",
     "blend_rgb_update_float",
     "colour_from_depth",
-    "aggregate_brightest",
 ]
 
 _OPTS = dict(parallel=True, cache=True, nogil=True)
@@ -277,37 +276,3 @@ def colour_from_depth(depth_um, bright, d0, span, lut, rgb):
             rgb[r, c, 1] = lut[j, 1] * b
             rgb[r, c, 2] = lut[j, 2] * b
 
-
-@njit(**_OPTS)
-def aggregate_brightest(vals, idx, lo, hi, gamma, z_step, d0, span, lut, depth, bright, rgb):
-    """Aggregate of the brightest-point depth code, for 2-D (rows, cols) state.
-
-    depth = idx * z_step (NaN unless vals > lo); bright = clip((vals - lo) /
-    (hi - lo), 0, 1) ** gamma (NaN -> 0); rgb as :func:`colour_from_depth`.
-    """
-    nr, nc = vals.shape
-    n = lut.shape[0]
-    for r in prange(nr):
-        for c in range(nc):
-            x = np.float64(vals[r, c])
-            b = (x - lo) / (hi - lo)
-            b = b if b > 0.0 else 0.0
-            b = b if b < 1.0 else 1.0
-            if gamma != 1.0:
-                b = b ** gamma
-            b32 = np.float32(b)
-            bright[r, c] = b32
-            if not x > lo:
-                depth[r, c] = np.nan
-                rgb[r, c, 0] = 0.0
-                rgb[r, c, 1] = 0.0
-                rgb[r, c, 2] = 0.0
-                continue
-            d = np.float32(np.float64(max(idx[r, c], 0)) * z_step)
-            depth[r, c] = d
-            t = (np.float64(d) - d0) / span
-            t = min(max(t, 0.0), 1.0)
-            j = min(int(t * n), n - 1)
-            rgb[r, c, 0] = lut[j, 0] * b32
-            rgb[r, c, 1] = lut[j, 1] * b32
-            rgb[r, c, 2] = lut[j, 2] * b32

@@ -244,24 +244,14 @@ def _colourize(depth_um: np.ndarray, bright: np.ndarray, d_range: tuple, lut: np
     return rgb
 
 
-def _coded_brightest(
-    v: Any, lo: float, hi: float, gamma: float, z_step: float, d_range: tuple,
-    lut: np.ndarray, progress: Progress,
-) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """(depth_um, brightness, rgb) of the "brightest" method (fused aggregate)."""
+def _coded_brightest(v: Any, lo: float, hi: float, z_step: float, progress: Progress) -> tuple:
+    """(values, depth_um) of the "brightest" method."""
     vals, idx = _fold_brightest(v, progress)
-    shape = vals.shape
-    depth = np.empty(shape, np.float32)
-    bright = np.empty(shape, np.float32)
-    rgb = np.empty(shape + (3,), np.float32)
-    flat = (-1, shape[-1])
-    with _KERNEL_LOCK:
-        nb.aggregate_brightest(
-            vals.reshape(flat), idx.reshape(flat), float(lo), float(hi), float(gamma),
-            float(z_step), float(d_range[0]), float(d_range[1] - d_range[0]), lut,
-            depth.reshape(flat), bright.reshape(flat), rgb.reshape(flat + (3,)),
-        )
-    return depth, bright, rgb
+    depth = idx.astype(np.float32)
+    del idx
+    depth *= np.float32(z_step)
+    depth[~(vals > lo)] = np.nan
+    return vals, depth
 
 
 def _coded_weighted(v: Any, lo: float, hi: float, z_step: float, progress: Progress) -> tuple:
@@ -424,10 +414,9 @@ def depth_coded_projection(
         depth *= np.float32(z_step)
         depth[~(vals > lo)] = np.nan
         brightness = _brightness(vals, lo, hi, gamma)
-    elif method == "brightest":
-        depth, brightness, rgb = _coded_brightest(v, lo, hi, gamma, z_step, d_range, lut, progress)
     else:
-        vals, depth = _coded_weighted(v, lo, hi, z_step, progress)
+        reduce = _coded_brightest if method == "brightest" else _coded_weighted
+        vals, depth = reduce(v, lo, hi, z_step, progress)
         brightness = _brightness(vals, lo, hi, gamma)
         del vals
         rgb = _colourize(depth, brightness, d_range, lut)
