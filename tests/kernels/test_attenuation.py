@@ -367,3 +367,17 @@ def test_histogram_capping_falls_back_to_the_capped_gain():
     last = capped[-1]
     expected = (stack[last].astype(np.float64) - fit.offset) * 2.0 + fit.offset
     np.testing.assert_allclose(out[last], expected, rtol=1e-5, atol=1e-2)
+
+
+def test_noise_free_stack_gives_the_exact_length():
+    # Beer-Lambert with no noise: lines of 1000 * exp(-z / 40) on a flat background of 10.
+    # The background spread is 0, so Otsu's threshold (skimage.filters.threshold_otsu) picks the
+    # lines; the log-linear fit of an exact exponential returns its length to rounding.
+    z = np.arange(16) * 2.5
+    stack = np.full((16, 64, 64), 10.0)
+    stack[:, ::6, :] += 1000.0 * np.exp(-z / 40.0)[:, None, None]
+    fit = estimate_attenuation(stack, z_step=2.5)
+    assert fit.length_um == pytest.approx(40.0, rel=1e-6)
+    assert fit.r_squared == pytest.approx(1.0, abs=1e-9)
+    assert fit.offset == pytest.approx(10.0, abs=1e-6)
+    np.testing.assert_allclose(correct_attenuation(stack, fit)[:, ::6, :], 1010.0, rtol=1e-5)

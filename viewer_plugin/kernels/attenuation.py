@@ -421,7 +421,8 @@ def _check_structure(fg: Foreground, sigma: np.ndarray) -> None:
              hint="is the stack empty or constant, or the mask too small?")
     with np.errstate(divide="ignore", invalid="ignore"):
         contrast = np.where(measured, fg.signal / np.where(sigma > 0, sigma, np.nan), np.nan)
-    best = float(np.nanmax(contrast)) if np.isfinite(contrast).any() else 0.0
+        contrast = np.where(measured & (sigma == 0) & (fg.signal > 0), np.inf, contrast)
+    best = float(np.nanmax(contrast)) if (~np.isnan(contrast)).any() else 0.0
     if best < 3.0:
         fail("stack", "structure at least 3 background standard deviations above the background",
              f"<at most {best:.2g} standard deviations: background only>")
