@@ -102,6 +102,24 @@ def test_depth_colour_preview_is_downsampled(make_napari_viewer, qtbot):
     assert "cells depth colour (preview)" not in viewer.layers  # replaced by the full result
 
 
+def test_z_step_override_is_used(make_napari_viewer, qtbot):
+    """An overridden z-step changes the depth range shown and the depths computed."""
+    from viewer_plugin.widgets.projection import DepthColourWidget
+
+    viewer = make_napari_viewer(show=True)
+    _add_stack(viewer)
+    widget = DepthColourWidget(viewer)
+    widget.live.value = False
+    widget.override_z.value = True
+    widget.z_step.value = 3.0
+    assert widget.depth_to.value == pytest.approx(33.0)  # (12 - 1) slices x 3 um
+    _run(qtbot, widget)
+    assert widget.result.depth_range == pytest.approx((0.0, 33.0))
+    assert widget.result_info["z_step_from"] == "override"
+    widget.override_z.value = False  # back to the layer scale
+    assert widget.z_step.value == pytest.approx(2.0) and widget.depth_to.value == pytest.approx(22.0)
+
+
 def test_depth_colour_bad_depth_range_is_a_notification(make_napari_viewer, errors):
     from viewer_plugin.widgets.projection import DepthColourWidget
 

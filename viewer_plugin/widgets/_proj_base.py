@@ -284,6 +284,7 @@ class ProjectionWidget(Container):
     def _on_override(self, value: bool) -> None:
         self.z_step.enabled = bool(value)
         self._sync_z_step()
+        self._on_parameter_changed()
 
     def _sync_z_step(self) -> None:
         layer, axis = self.layer, self.axis_combo.value

@@ -197,6 +197,8 @@ class DepthColourWidget(ProjectionWidget):
 
     # ----------------------------------------------------------- preview
     def _on_parameter_changed(self, *_: Any) -> None:
+        if getattr(self, "whole_depth", None) is not None and self.whole_depth.value:
+            self._reset_depth_range()  # follows a new z-step
         self._show_clim()
         if getattr(self, "live", None) is not None and self.live.value and self.layer is not None:
             self._timer.start()
