@@ -178,6 +178,17 @@ def test_weighted_thick_fibre_centre():
     np.testing.assert_allclose(result.depth_um, 10.0)
 
 
+def test_weighted_default_floor_ignores_background():
+    # noisy background everywhere, one fibre at slice 3 of 40: with the default limits the
+    # weighted depth is the fibre's, not pulled to mid-stack by the background
+    rng = np.random.default_rng(53)
+    stack = rng.poisson(100, size=(40, 32, 32)).astype(np.uint16)
+    stack[2:5, 10:14, :] += np.array([300, 600, 300], np.uint16)[:, None, None]
+    result = P.depth_coded_projection(stack, method="weighted")
+    np.testing.assert_allclose(result.depth_um[10:14], 3.0, atol=0.3)
+    assert result.clim[0] > np.percentile(stack, 0.1)
+
+
 @pytest.mark.parametrize("gamma", [1.0, 0.6])
 def test_tinted_against_numpy_formula(gamma):
     stack = random_stack(np.uint16, shape=(8, 9, 10), seed=17)

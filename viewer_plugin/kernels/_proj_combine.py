@@ -252,6 +252,22 @@ def estimate_clim(v: Any, q: tuple[float, float] = (0.1, 99.9)) -> tuple[float, 
     return low, high
 
 
+def background_floor(v: Any, n_sigma: float = 3.0) -> float:
+    """Background level + *n_sigma* spreads, from a strided subsample.
+
+    Uses :func:`.profiles.background_level` (sigma-clipped mean) on about
+    2.6e5 values; the default lower limit of weighted depth codes.
+    """
+    from .profiles import background_level
+
+    sample = _sample(v, SAMPLE_FLOAT).astype(np.float64)
+    sample = sample[np.isfinite(sample)]
+    if sample.size == 0:
+        return 0.0
+    bg = background_level(sample[None, :], step=1, n_sigma=n_sigma)
+    return float(bg.level + n_sigma * bg.sigma)
+
+
 # --- colour tables ---------------------------------------------------------
 
 def resolve_lut(cmap: Any, *, name: str = "cmap") -> np.ndarray:

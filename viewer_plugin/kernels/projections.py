@@ -30,7 +30,14 @@ from typing import Any, Callable, Optional
 import numpy as np
 
 from . import _numba_proj as nb
-from ._proj_combine import estimate_clim, fold_chunks, kernel_dtype, resolve_lut, slice_colours
+from ._proj_combine import (
+    background_floor,
+    estimate_clim,
+    fold_chunks,
+    kernel_dtype,
+    resolve_lut,
+    slice_colours,
+)
 from ._validate import check_choice, check_interval, check_number, check_stack, depth_first
 from .legend import DepthLegend, depth_legend
 
@@ -348,7 +355,12 @@ def depth_coded_projection(
         (lo, hi) display limits in input units. Default: the 0.1 and 99.9
         percentiles of the stack, **estimated from a strided subsample**
         (whole pixel rows, about a million values) for speed; pass the
-        viewer's contrast limits to match the display.
+        viewer's contrast limits to match the display. For "weighted" the
+        default lo is raised to the background level + 3 sigma
+        (sigma-clipped, :func:`~viewer_plugin.kernels.background_level`):
+        with lo below the background, the background voxels all along the
+        ray pull every weighted depth towards the middle of the stack. When
+        passing clim for "weighted", put lo at or above the background.
     gamma : float, optional
         Exponent (> 0) applied to the normalised brightness.
     axis : int, optional
@@ -406,6 +418,10 @@ def depth_coded_projection(
     gamma = check_number(gamma, name="gamma", low=0.0, low_open=True)
     d_range = _resolve_depth_range(depth_range, n, z_step)
     lo, hi = _resolve_clim(clim, v)
+    if clim is None and method == "weighted":
+        # background voxels all along the ray would pull every depth to mid-stack
+        lo = max(lo, background_floor(v))
+        hi = hi if hi > lo else lo + max(1.0, abs(lo)) * 1e-6
     if method == "tinted":
         colours = slice_colours(lut, n, z_step, d_range)
         vals, idx, rgb = _coded_tinted(v, lo, hi, colours, gamma, progress)
