@@ -381,3 +381,14 @@ def test_noise_free_stack_gives_the_exact_length():
     assert fit.r_squared == pytest.approx(1.0, abs=1e-9)
     assert fit.offset == pytest.approx(10.0, abs=1e-6)
     np.testing.assert_allclose(correct_attenuation(stack, fit)[:, ::6, :], 1010.0, rtol=1e-5)
+
+
+def test_very_strong_attenuation_uses_the_measurable_slices():
+    # l = 10 um over 150 um: deep slices hold e^-15 of the signal (pure noise). They must not
+    # set the foreground threshold; the shallow slices still give the Beer-Lambert length (5 %).
+    rng = np.random.default_rng(15)
+    spots = (rng.random((30, 96, 96)) < 0.03) * rng.uniform(100, 250, (30, 96, 96))
+    stack = (OFFSET + rng.poisson(spots * np.exp(-np.arange(30) * 5.0 / 10.0)[:, None, None] + 5))
+    fit = estimate_attenuation(stack.astype(np.uint16), z_step=5.0)
+    assert fit.length_um == pytest.approx(10.0, rel=0.05)
+    assert np.isnan(fit.profile[-1]) and any("left out" in note for note in fit.warnings)

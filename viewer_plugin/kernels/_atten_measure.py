@@ -24,6 +24,13 @@ TARGET_SAMPLE_PER_SLICE = 2**14
 #: A slice needs at least this many foreground voxels in the sample to be measured.
 MIN_FOREGROUND = 10
 
+#: Slices needing a larger gain than this hold too little signal to measure.
+MAX_SELECTION_GAIN = 50.0
+
+#: Slices whose gain-corrected background noise exceeds this multiple of the
+#: quietest slice's are too noisy after correction to be measured.
+MAX_NOISE_GROWTH = 5.0
+
 #: Foreground must exceed this many (corrected) background standard deviations.
 #: Common practice is 3; 5 is used because photon-counting backgrounds at low
 #: counts (a few photons of haze) have a much heavier bright tail than a Gaussian.
@@ -138,21 +145,32 @@ def measure_foreground(above: np.ndarray, gain: np.ndarray, noise: np.ndarray) -
     the structure (a threshold far out in the bright tail makes the
     select-and-fit loop drift), high enough that amplified noise of deep
     slices does not pass as dim foreground (which would pull their signal
-    down and feed a runaway correction). Noise-free data (zero spread) use
-    Otsu's threshold instead. The signal itself is measured on *above*.
+    down and feed a runaway correction). Slices whose corrected noise is
+    more than :data:`MAX_NOISE_GROWTH` times the smallest, or that would need
+    a gain above :data:`MAX_SELECTION_GAIN`, are not measured and do not set
+    the threshold (otherwise one very deep slice would lift it above all
+    structure); which slices these are depends on gains and noise only, not
+    on the signal, so leaving them out does not bias the rest. Noise-free data
+    (zero spread) use Otsu's threshold instead. The signal itself is
+    measured on *above*.
     """
+    scaled = noise * gain
+    usable = gain <= MAX_SELECTION_GAIN
+    if np.isfinite(scaled).any():
+        with np.errstate(invalid="ignore"):
+            usable &= ~(scaled > MAX_NOISE_GROWTH * np.nanmin(scaled))
     gain32 = gain.astype(np.float32)
-    corrected_noise = noise * gain
+    corrected_noise = np.where(usable, scaled, np.nan)
     threshold = float("nan")
     if np.isfinite(corrected_noise).any():
         threshold = NOISE_SIGMAS * float(np.nanmax(corrected_noise))
     if not threshold > 0:
-        threshold = otsu_threshold(_thin(above) * gain32[:, None])
+        threshold = otsu_threshold(_thin(above[usable]) * gain32[usable, None])
     count, total, square, n_finite = _foreground_sums(above, gain32, np.float32(threshold))
     safe = np.maximum(count, 1)
     mean = total / safe
     var = np.maximum(square / safe - mean**2, 0.0) * safe / np.maximum(safe - 1, 1)
-    ok = count >= MIN_FOREGROUND
+    ok = (count >= MIN_FOREGROUND) & usable
     signal = np.where(ok, mean, np.nan)
     sem = np.where(ok, np.sqrt(var / safe), np.nan)
     fraction = count / np.maximum(n_finite, 1)

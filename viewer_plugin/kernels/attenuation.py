@@ -219,7 +219,8 @@ def _findings(fit: models.ExponentialFit, fg: Foreground, length: float,
         notes.append("the foreground selection did not settle; the estimate may be unstable")
     missing = int((~np.isfinite(fg.signal)).sum())
     if missing:
-        notes.append(f"{missing} slice(s) had too little foreground to measure and were left out of the fit")
+        notes.append(f"{missing} slice(s) had too little foreground, or too much amplified noise, "
+                     "to measure and were left out of the fit")
     if math.isinf(length):
         notes.append("the signal does not decrease with depth: the exponential model applies "
                      "no correction")
