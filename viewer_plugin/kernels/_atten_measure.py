@@ -9,6 +9,7 @@ work on that sample only.
 from __future__ import annotations
 
 import math
+import warnings
 from dataclasses import dataclass
 from typing import Any, Callable
 
@@ -28,7 +29,7 @@ MIN_FOREGROUND = 10
 MAX_SELECTION_GAIN = 50.0
 
 #: Slices whose gain-corrected background noise exceeds this multiple of the
-#: quietest slice's are too noisy after correction to be measured.
+#: brightest slice's are too noisy after correction to be measured.
 MAX_NOISE_GROWTH = 5.0
 
 #: Foreground must exceed this many (corrected) background standard deviations.
@@ -133,7 +134,17 @@ class Foreground:
     threshold: float
 
 
-def measure_foreground(above: np.ndarray, gain: np.ndarray, noise: np.ndarray) -> Foreground:
+def brightest_slice(above: np.ndarray) -> int:
+    """Index of the slice with the highest 99th percentile above background (best signal)."""
+    thin = above[:, :: max(1, above.shape[1] // 4096)]
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN (masked) slices
+        bright = np.nanpercentile(thin, 99, axis=1)
+    return int(np.nanargmax(bright)) if np.isfinite(bright).any() else 0
+
+
+def measure_foreground(above: np.ndarray, gain: np.ndarray, noise: np.ndarray,
+                       reference: int = 0) -> Foreground:
     """Mean above-background intensity of the foreground voxels of every row.
 
     *above* is the sample minus each slice's background, *noise* each
@@ -146,7 +157,8 @@ def measure_foreground(above: np.ndarray, gain: np.ndarray, noise: np.ndarray) -
     select-and-fit loop drift), high enough that amplified noise of deep
     slices does not pass as dim foreground (which would pull their signal
     down and feed a runaway correction). Slices whose corrected noise is
-    more than :data:`MAX_NOISE_GROWTH` times the smallest, or that would need
+    more than :data:`MAX_NOISE_GROWTH` times that of the *reference* slice
+    (the brightest, see :func:`brightest_slice`), or that would need
     a gain above :data:`MAX_SELECTION_GAIN`, are not measured and do not set
     the threshold (otherwise one very deep slice would lift it above all
     structure); which slices these are depends on gains and noise only, not
@@ -158,7 +170,7 @@ def measure_foreground(above: np.ndarray, gain: np.ndarray, noise: np.ndarray) -
     usable = gain <= MAX_SELECTION_GAIN
     if np.isfinite(scaled).any():
         with np.errstate(invalid="ignore"):
-            usable &= ~(scaled > MAX_NOISE_GROWTH * np.nanmin(scaled))
+            usable &= ~(scaled > MAX_NOISE_GROWTH * scaled[reference])
     gain32 = gain.astype(np.float32)
     corrected_noise = np.where(usable, scaled, np.nan)
     threshold = float("nan")

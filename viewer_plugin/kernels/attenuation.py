@@ -25,6 +25,7 @@ from . import _atten_models as models
 from ._atten_measure import (
     Foreground,
     auto_step,
+    brightest_slice,
     lateral_sample,
     measure_background,
     measure_foreground,
@@ -193,7 +194,8 @@ def _iterate(above: np.ndarray, noise: np.ndarray, depth: np.ndarray, model: str
     """Select foreground on the corrected sample, re-fit, until the gains settle."""
     gain = np.ones_like(depth)
     curve = np.full(depth.shape, np.nan)
-    fg = measure_foreground(above, gain, noise)
+    reference = brightest_slice(above)
+    fg = measure_foreground(above, gain, noise, reference)
     converged = False
     iteration = 0
     for iteration in range(1, MAX_ITERATIONS + 1):
@@ -208,7 +210,7 @@ def _iterate(above: np.ndarray, noise: np.ndarray, depth: np.ndarray, model: str
         if change < TOLERANCE or (iteration > 2 * DAMP_AFTER and change < LOOSE_TOLERANCE):
             converged = True
             break
-        fg = measure_foreground(above, gain, noise)
+        fg = measure_foreground(above, gain, noise, reference)
     return fg, gain, curve, iteration, converged
 
 
