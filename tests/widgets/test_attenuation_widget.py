@@ -69,6 +69,9 @@ def test_fit_then_correct_adds_a_layer_and_keeps_the_source(demo_viewer, qtbot):
     assert "relative" in widget._caution.value
     widget.log_scale.value = False
     assert widget.figure.axes[0].get_yscale() == "linear"
+    # a fit belongs to its layer: choosing the corrected layer clears it
+    widget.layer_combo.value = out
+    assert widget.fit_result is None and not widget.correct_button.enabled
 
 
 def test_mask_from_shapes_and_bad_input(demo_viewer, qtbot, errors):

@@ -226,6 +226,18 @@ class AttenuationWidget(Container):
         self.axis_combo.value = default_depth_axis(layer)
         self._sync_step()
         self.truth_label.value = self._truth_line(layer, None)
+        if self.fit_result is not None and layer is not self.fit_source:
+            self._clear_fit()
+
+    def _clear_fit(self) -> None:
+        """A fit belongs to its layer: picking another one clears it (and disables Correct)."""
+        self.fit_result = None
+        self.fit_source = None
+        self.correct_button.enabled = False
+        self.result_label.value = "Press Fit to measure this layer."
+        self.notes_label.value = ""
+        self.figure.clear()
+        self.canvas.draw_idle()
 
     def _sync_step(self) -> None:
         layer = self.layer_combo.value
