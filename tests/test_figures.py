@@ -129,7 +129,9 @@ def test_methods_sentence():
     weighted = methods_sentence({**PARAMS, "method": "weighted", "clim": None,
                                  "clim_used": [3, 900], "gamma": 0.5})
     assert "intensity-weighted mean depth" in weighted and "gamma 0.5" in weighted
-    assert "automatic 0.1 and 99.9 percentiles" in weighted
+    assert "background level + 3 SD" in weighted  # the kernel's default lower limit for weighted
+    tinted = methods_sentence({**PARAMS, "method": "tinted", "clim": None, "clim_used": [3, 900]})
+    assert "automatic 0.1 and 99.9 percentiles" in tinted
 
 
 @pytest.mark.parametrize(("span", "expected"), [(300.0, 50.0), (38.4, 5.0), (1.0, 0.2), (9.9, 1.0)])

@@ -219,7 +219,12 @@ def methods_sentence(parameters: Mapping[str, Any], *, legend_range: Sequence[fl
     if used is not None:
         text += (f" Brightness was scaled linearly from {_fmt(used[0])} to {_fmt(used[1])} "
                  "(raw intensity")
-        text += ")" if clim is not None else "; automatic 0.1 and 99.9 percentiles)"
+        if clim is not None:
+            text += ")"
+        elif method == "weighted":
+            text += "; automatic: background level + 3 SD and the 99.9th percentile)"
+        else:
+            text += "; automatic 0.1 and 99.9 percentiles)"
     else:
         text += " Brightness was scaled between the 0.1 and 99.9 percentiles of the intensity"
     text += "." if float(gamma) == 1.0 else f" with gamma {_fmt(float(gamma))}."

@@ -361,3 +361,18 @@ def test_real_cortex_depth_map(make_napari_viewer, qtbot, realdata):
     np.testing.assert_array_equal(viewer.layers["cortex max"].data, data.max(axis=0))
     np.testing.assert_array_equal(layer.data, np.asarray(read_stack(realdata /
                                   "cortex_cells_serial_twophoton.ome.tif").data))
+
+
+def test_weighted_with_layer_contrast_warns_in_the_dock(make_napari_viewer):
+    """Weighted depth needs a lower limit above the background (kernel docs): the dock says so."""
+    from viewer_plugin.widgets.projection import DepthColourWidget
+
+    viewer = make_napari_viewer(show=True)
+    _add_stack(viewer)
+    widget = DepthColourWidget(viewer)
+    widget.live.value = False
+    assert widget.method_hint.value == ""
+    widget.method.value = "weighted"
+    assert "background" in widget.method_hint.value
+    widget.auto_contrast.value = True
+    assert widget.method_hint.value == "" and "background + 3 SD" in widget.clim_label.value

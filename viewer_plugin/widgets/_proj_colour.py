@@ -87,6 +87,7 @@ class DepthColourWidget(ProjectionWidget):
         self.auto_contrast = CheckBox(text="Automatic contrast (percentiles)", value=False,
                                       tooltip="Otherwise the layer's contrast limits set brightness")
         self.clim_label = Label(value="")
+        self.method_hint = Label(value="")
         self.gamma = FloatSlider(label="Gamma", value=1.0, min=0.2, max=3.0, step=0.05)
         self.live = CheckBox(text="Live preview (downsampled)", value=True)
         self.legend = Label(value="")  # shows the colour bar as a pixmap
@@ -95,8 +96,8 @@ class DepthColourWidget(ProjectionWidget):
         self.export_button = PushButton(text="Export figure\u2026", enabled=False)
         self.caveat = Label(value=CAVEAT)
         self.extend([self.method, self.cmap, self.whole_depth, self.depth_from, self.depth_to,
-                     self.auto_contrast, self.clim_label, self.gamma, self.live, self.legend,
-                     self.legend_label, self.caveat])
+                     self.auto_contrast, self.clim_label, self.method_hint, self.gamma, self.live,
+                     self.legend, self.legend_label, self.caveat])
         for widget in (self.method, self.cmap, self.depth_from, self.depth_to, self.auto_contrast,
                        self.gamma, self.live):
             widget.changed.connect(self._on_parameter_changed)
@@ -125,9 +126,15 @@ class DepthColourWidget(ProjectionWidget):
         self._on_parameter_changed()
 
     def _show_clim(self) -> None:
+        weighted = self.method.value == "weighted"
+        self.method_hint.value = (
+            "weighted: the lower contrast limit must be at or above the background, or the "
+            "background pulls every depth towards mid-stack; automatic contrast does this "
+            "(background + 3 SD)" if weighted and not self.auto_contrast.value else "")
         layer = self.layer
         if layer is None or self.auto_contrast.value:
-            self.clim_label.value = "contrast: automatic (0.1 / 99.9 percentiles)" \
+            low = "background + 3 SD" if weighted else "0.1 percentile"
+            self.clim_label.value = f"contrast: automatic ({low} / 99.9 percentile)" \
                 if layer is not None else ""
             return
         lo, hi = (float(v) for v in layer.contrast_limits)
@@ -197,10 +204,12 @@ class DepthColourWidget(ProjectionWidget):
 
     # ----------------------------------------------------------- preview
     def _on_parameter_changed(self, *_: Any) -> None:
-        if getattr(self, "whole_depth", None) is not None and self.whole_depth.value:
+        if getattr(self, "live", None) is None:  # still building the dock
+            return
+        if self.whole_depth.value:
             self._reset_depth_range()  # follows a new z-step
         self._show_clim()
-        if getattr(self, "live", None) is not None and self.live.value and self.layer is not None:
+        if self.live.value and self.layer is not None:
             self._timer.start()
 
     def update_preview(self, *, start_thread: bool = True) -> Any:
