@@ -77,11 +77,11 @@ def main() -> int:
     colour = DepthColourWidget(viewer)
     dock(viewer, colour, "Depth colour projection")
     wait(app, colour.compute(start_thread=False), colour)
-    colour.live.value = False  # the next shots change the source's contrast: no preview then
     only_visible(viewer, f"{name} depth colour")
     viewer.reset_view()
     settle(app)
     viewer.screenshot(str(IMAGES / "projection_depth_colour.png"), canvas_only=False)
+    colour.live.value = False  # the next shots change the source's contrast: no preview then
 
     brightest = BrightestPointWidget(viewer)
     source.contrast_limits = (150.0, source.contrast_limits[1])  # above the demo's background
