@@ -155,3 +155,14 @@ def test_real_open_stacks_voxel_sizes(realdata):
     assert golgi.scale == pytest.approx((0.3876, 0.3514, 0.3514))
     cortex = read_stack(realdata / "cortex_cells_serial_twophoton.ome.tif")
     assert cortex.scale == pytest.approx((5.0, 2.0, 2.0))
+
+
+def test_written_files_get_normal_permissions(tmp_path):
+    """A result is readable like any other file the user makes (0o666 less the umask), not 0o600."""
+    import os
+
+    from viewer_plugin.io._atomic import _UMASK
+
+    path = write_ome_tiff(tmp_path / "p.ome.tif", np.zeros((2, 4, 4), np.uint8), axes="ZYX",
+                          scale=(1, 1, 1))
+    assert os.stat(path).st_mode & 0o777 == 0o666 & ~_UMASK

@@ -6,12 +6,13 @@ import json
 import math
 import os
 import sys
-import tempfile
 import time
 from pathlib import Path
 from typing import Any, Callable
 
 import numpy as np
+
+from ..io._atomic import atomic_write
 
 #: Exit statuses (documented in ``stackdepth --help``).
 EXIT_OK = 0
@@ -35,19 +36,8 @@ def check_output_path(path: str | os.PathLike[str], *, overwrite: bool, name: st
 
 
 def atomic_write_bytes(path: Path, write: Callable[[Path], None]) -> Path:
-    """Call *write(tmp)* on a temporary file beside *path*, then rename it into place."""
-    path = Path(path)
-    suffix = "".join(path.suffixes) or ".tmp"
-    fd, tmp_name = tempfile.mkstemp(prefix=f".{path.name}.", suffix=suffix, dir=path.parent)
-    os.close(fd)
-    tmp = Path(tmp_name)
-    try:
-        write(tmp)
-        os.replace(tmp, path)
-    finally:
-        if tmp.exists():
-            tmp.unlink()
-    return path
+    """Write through *write(tmp)* atomically (see :func:`viewer_plugin.io._atomic.atomic_write`)."""
+    return atomic_write(path, write)
 
 
 def _json_default(value: Any) -> Any:

@@ -15,7 +15,6 @@ from __future__ import annotations
 import json
 import logging
 import os
-import tempfile
 import xml.etree.ElementTree as ET
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -25,6 +24,7 @@ import numpy as np
 import tifffile
 
 from ..kernels._validate import check_stack, fail, is_dask
+from ._atomic import atomic_write
 
 logger = logging.getLogger(__name__)
 
@@ -391,20 +391,15 @@ def write_ome_tiff(
     options: dict[str, Any] = {"ome": True, "metadata": ome, "bigtiff": nbytes > 2**31 - 2**26,
                                "compression": compression, "photometric":
                                "rgb" if axes.endswith("S") else "minisblack"}
-    fd, tmp_name = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".ome.tif", dir=path.parent)
-    os.close(fd)
-    tmp = Path(tmp_name)
-    try:
+    def write(tmp: Path) -> None:
         if is_dask(data):
             plane_axes = 3 if axes.endswith("S") else 2
             tifffile.imwrite(tmp, _planes(data, plane_axes), shape=data.shape, dtype=data.dtype,
                              **options)
         else:
             tifffile.imwrite(tmp, np.asarray(data), **options)
-        os.replace(tmp, path)
-    finally:
-        if tmp.exists():
-            tmp.unlink()
+
+    atomic_write(path, write)
     return path
 
 

@@ -81,7 +81,8 @@ class BackgroundTask:
                 raise Cancelled
             self._relay.advanced.emit(int(done), int(total))
 
-        worker = create_worker(job, emit, _start_thread=False)
+        # errors are handled by _on_error; without _ignore_errors they would be re-raised in Qt
+        worker = create_worker(job, emit, _start_thread=False, _ignore_errors=True)
         worker.returned.connect(on_result)
         worker.errored.connect(self._on_error)
         worker.finished.connect(self._on_finished)
