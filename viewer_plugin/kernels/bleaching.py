@@ -303,6 +303,28 @@ def _fit_report(signal: np.ndarray, used: np.ndarray, *, interval: float, tolera
     )
 
 
+def _depth_signal(stack: Any, *, axis: int, z_step: float) -> tuple[np.ndarray, np.ndarray]:
+    """Per-slice foreground signal of one z-stack, measured as the attenuation estimate does.
+
+    The slices of one stack hold different structures, so a per-slice
+    threshold would select a different fraction of each slice's signal as it
+    dims. :func:`~viewer_plugin.kernels.attenuation.estimate_attenuation`
+    selects the foreground on the corrected stack and iterates, which keeps the
+    selection the same relative to the signal in every slice; the depth check
+    uses that same profile, so the two tools agree on one stack.
+    """
+    import warnings
+
+    from .attenuation import AttenuationWarning, estimate_attenuation
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", AttenuationWarning)
+        fit = estimate_attenuation(stack, z_step=z_step, axis=axis)
+    signal = np.asarray(fit.profile, dtype=np.float64)
+    used = np.isfinite(signal) & (signal > 0)
+    return np.where(used, signal, np.nan), used
+
+
 def estimate_bleaching(
     series: Any,
     *,
@@ -319,10 +341,13 @@ def estimate_bleaching(
     The signal of each frame is the mean over a foreground mask of its voxels,
     minus its background level. For a time axis the mask is fixed: the Otsu
     foreground of the (lightly smoothed) first frame, so a structure appearing
-    later is not counted. The slices of a single stack show different
-    structures, so for a depth axis each slice uses its own Otsu foreground,
-    and slices without a clear foreground (less than 1.5 background standard
-    deviations above it: above or below the tissue) are left out of the fit. First-order bleaching
+    later is not counted. The slices of a single 3-D stack show different
+    structures, so for a depth axis (without *mask* or *offset*) the profile is
+    the foreground profile of :func:`~viewer_plugin.kernels.estimate_attenuation`
+    (foreground chosen on the corrected stack, iterated), and slices it could
+    not measure are left out of the fit; with a mask or offset, or for other
+    shapes, each slice uses its own Otsu foreground and slices less than 1.5
+    background standard deviations above the background are left out. First-order bleaching
     ``I_t = I_0 (1 - k)**t`` is fitted by least squares; a plateau or a second
     component replaces it only when the F-test finds it significantly better
     (p < 0.01).
@@ -429,7 +454,9 @@ def estimate_bleaching(
              f"{level:.4g} (sd {background.sigma:.3g})>",
              hint="the series looks like background only; pass a mask or check the layer")
     used = finite
-    if axis_kind == "depth" and mask is None:
+    if axis_kind == "depth" and mask is None and moved.ndim == 3 and offset is None:
+        signal, used = _depth_signal(series, axis=axis, z_step=interval)
+    elif axis_kind == "depth" and mask is None:
         # slices without a clear foreground (above or below the tissue) hold only noise
         clear = finite & (signal > MIN_CONTRAST * np.where(np.isfinite(sigmas), sigmas, 0.0))
         used = clear if np.count_nonzero(clear) >= 2 else finite
