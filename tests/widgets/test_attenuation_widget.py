@@ -24,16 +24,6 @@ def _run(qtbot, widget, action):
 
 
 @pytest.fixture
-def errors(monkeypatch):
-    """Collect napari error notifications (the widget reports bad input that way)."""
-    seen: list[str] = []
-    import napari.utils.notifications as notes
-
-    monkeypatch.setattr(notes, "show_error", seen.append)
-    return seen
-
-
-@pytest.fixture
 def demo_viewer(make_napari_viewer):
     from viewer_plugin.samples import demo_layer
     from viewer_plugin.demo import fibre_slab

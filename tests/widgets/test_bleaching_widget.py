@@ -34,16 +34,6 @@ def _run(qtbot, widget, worker):
     qtbot.waitUntil(lambda: not widget.task.running, timeout=WAIT_MS)
 
 
-@pytest.fixture
-def errors(monkeypatch):
-    """Collect napari error notifications instead of showing them."""
-    seen: list[str] = []
-    import napari.utils.notifications as notes
-
-    monkeypatch.setattr(notes, "show_error", seen.append)
-    return seen
-
-
 def test_check_on_the_demo_series_shows_verdict_and_plot(make_napari_viewer, qtbot):
     from viewer_plugin.widgets.bleaching import BleachingWidget
 

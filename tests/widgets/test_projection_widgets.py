@@ -41,19 +41,6 @@ def _run(qtbot, widget, *, signal="returned"):
     return worker
 
 
-@pytest.fixture
-def errors(monkeypatch):
-    """Collect napari error notifications raised by the widgets (instead of exceptions)."""
-    import napari.utils.notifications as notes
-
-    import viewer_plugin.widgets._runner as runner
-
-    seen: list[str] = []
-    monkeypatch.setattr(runner, "show_error", seen.append)
-    monkeypatch.setattr(notes, "show_error", seen.append)
-    return seen
-
-
 def test_depth_colour_widget_adds_rgb_layer(make_napari_viewer, qtbot):
     from viewer_plugin.widgets.projection import DepthColourWidget
 

@@ -22,6 +22,21 @@ def image_layer_choices(viewer: "napari.Viewer", *, min_ndim: int = 3) -> list[A
     ]
 
 
+def connect_layer_events(viewer: "napari.Viewer", callback: Any) -> None:
+    """Call *callback* whenever layers are added, removed or reordered."""
+    for name in ("inserted", "removed", "reordered"):
+        getattr(viewer.layers.events, name).connect(callback)
+
+
+def disconnect_layer_events(viewer: "napari.Viewer", callback: Any) -> None:
+    """Undo :func:`connect_layer_events` (quietly, also while napari shuts down)."""
+    for name in ("inserted", "removed", "reordered"):
+        try:
+            getattr(viewer.layers.events, name).disconnect(callback)
+        except (RuntimeError, TypeError, ValueError):
+            pass
+
+
 def layer_step(layer: Any, axis: int) -> float:
     """The layer's scale along *axis* (um per voxel when the file said so)."""
     return float(layer.scale[axis])

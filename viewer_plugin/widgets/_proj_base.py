@@ -16,7 +16,13 @@ import numpy as np
 from magicgui.widgets import CheckBox, ComboBox, Container, FloatSpinBox, Label, PushButton
 
 from ..kernels._validate import Cancelled
-from ._common import image_layer_choices, layer_step, leading_axis_labels
+from ._common import (
+    connect_layer_events,
+    disconnect_layer_events,
+    image_layer_choices,
+    layer_step,
+    leading_axis_labels,
+)
 from ._runner import BackgroundTask
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -118,26 +124,6 @@ def downsampled(data: Any, axis: int, step: int) -> tuple[Any, tuple[int, ...]]:
     return data[index], tuple(others)
 
 
-class _Stopped:
-    """A computation that stopped on purpose (cancel) or on bad input.
-
-    Returned by the worker instead of raised, so that napari's worker does not
-    re-raise it into the Qt event loop; shown as a napari notification.
-    """
-
-    def __init__(self, exc: BaseException) -> None:
-        self.exc = exc
-        self.cancelled = isinstance(exc, Cancelled)
-
-    def notify(self, label: str) -> None:
-        from napari.utils.notifications import show_error, show_info
-
-        if self.cancelled:
-            show_info(f"{label}: cancelled")
-        else:
-            show_error(f"{label}: {self.exc}")
-
-
 class ProjectionWidget(Container):
     """Base of the projection dock widgets: stack, depth axis, z-step, run controls.
 
@@ -180,9 +166,7 @@ class ProjectionWidget(Container):
         self.axis_combo.changed.connect(self._on_axis_changed)
         self.override_z.changed.connect(self._on_override)
         self.z_step.changed.connect(self._on_parameter_changed)
-        events = self.viewer.layers.events
-        for name in ("inserted", "removed", "reordered"):
-            getattr(events, name).connect(self._refresh_layers)
+        connect_layer_events(self.viewer, self._refresh_layers)
         self.native.destroyed.connect(self._disconnect_viewer)
         self._on_layer_changed(self.layer_combo.value)
         start_warm_up()
@@ -227,12 +211,7 @@ class ProjectionWidget(Container):
         self._on_layer_changed(self.layer_combo.value)
 
     def _disconnect_viewer(self, *_: Any) -> None:
-        events = self.viewer.layers.events
-        for name in ("inserted", "removed", "reordered"):
-            try:
-                getattr(events, name).disconnect(self._refresh_layers)
-            except (RuntimeError, TypeError, ValueError):
-                pass
+        disconnect_layer_events(self.viewer, self._refresh_layers)
         self._watch_layer(None)
         self._on_close()
 
@@ -329,21 +308,16 @@ class ProjectionWidget(Container):
         data = layer_data(layer)
 
         def job(progress: Callable[[int, int], None]) -> Any:
-            # Expected stops come back as values, not as worker errors: the runner's worker
-            # re-raises errors into the Qt event loop (see _Stopped).
-            try:
-                return self._job(data, axis, z_step, options, progress)
-            except (Cancelled, ValueError, OSError, MemoryError) as exc:
-                return _Stopped(exc)
+            return self._job(data, axis, z_step, options, progress)
 
         def on_result(result: Any) -> None:
-            if isinstance(result, _Stopped):
-                result.notify(self.title)
-                self.status.value = "cancelled" if result.cancelled else f"stopped: {result.exc}"
-            else:
-                self._show(layer, axis, z_step, options, result)
+            self._show(layer, axis, z_step, options, result)
 
-        worker = self.task.start(job, on_result=on_result, start_thread=start_thread)
+        def on_stopped(exc: BaseException) -> None:  # the runner has shown the notification
+            self.status.value = "cancelled" if isinstance(exc, Cancelled) else f"stopped: {exc}"
+
+        worker = self.task.start(job, on_result=on_result, on_stopped=on_stopped,
+                                 start_thread=start_thread)
         self.last_worker = worker
         return worker
 

@@ -19,7 +19,7 @@ from typing import Any, Callable
 
 from napari.qt.threading import create_worker
 from napari.utils import progress as napari_progress
-from napari.utils.notifications import show_error, show_info, show_warning
+from napari.utils import notifications
 from qtpy.QtCore import QObject, Signal
 
 from ..kernels._validate import Cancelled
@@ -33,6 +33,14 @@ class _Relay(QObject):
     """Carries progress from the worker thread to the GUI thread."""
 
     advanced = Signal(int, int)
+
+
+class Stopped:
+    """An expected stop of a job (cancel or bad input), carried back as a value."""
+
+    def __init__(self, exc: BaseException) -> None:
+        self.exc = exc
+        self.cancelled = isinstance(exc, Cancelled)
 
 
 class BackgroundTask:
@@ -63,15 +71,19 @@ class BackgroundTask:
         job: Callable[[ProgressCallback], Any],
         *,
         on_result: Callable[[Any], None],
+        on_stopped: Callable[[BaseException], None] | None = None,
         start_thread: bool = True,
     ) -> Any:
         """Start *job(progress)* in a worker thread; call *on_result* on the GUI thread.
 
+        An expected stop (cancel, bad input: ``ValueError``, ``OSError``,
+        ``MemoryError``) is shown as a napari notification and passed to
+        *on_stopped*; anything else is logged and shown as an unexpected error.
         Returns the napari worker (not started when ``start_thread=False``,
         which tests use to wait on its signals).
         """
         if self.worker is not None:
-            show_warning(f"{self.label}: a computation is already running; cancel it first")
+            notifications.show_warning(f"{self.label}: a computation is already running; cancel it first")
             return None
         self._cancel_requested = False
         self._bar = napari_progress(total=0, desc=self.label)
@@ -81,9 +93,24 @@ class BackgroundTask:
                 raise Cancelled
             self._relay.advanced.emit(int(done), int(total))
 
-        # errors are handled by _on_error; without _ignore_errors they would be re-raised in Qt
-        worker = create_worker(job, emit, _start_thread=False, _ignore_errors=True)
-        worker.returned.connect(on_result)
+        def guarded(progress: ProgressCallback) -> Any:
+            # expected stops come back as values, so `returned` always fires
+            try:
+                return job(progress)
+            except (Cancelled, ValueError, OSError, MemoryError) as exc:
+                return Stopped(exc)
+
+        def done(result: Any) -> None:
+            if isinstance(result, Stopped):
+                self._notify(result.exc)
+                if on_stopped is not None:
+                    on_stopped(result.exc)
+            else:
+                on_result(result)
+
+        # unexpected errors are handled by _on_error; without _ignore_errors napari re-raises them
+        worker = create_worker(guarded, emit, _start_thread=False, _ignore_errors=True)
+        worker.returned.connect(done)
         worker.errored.connect(self._on_error)
         worker.finished.connect(self._on_finished)
         self.worker = worker
@@ -94,10 +121,9 @@ class BackgroundTask:
         return worker
 
     def cancel(self) -> None:
-        """Ask the running computation to stop at its next chunk."""
+        """Ask the running computation to stop at its next progress call (chunk boundary)."""
         if self.worker is not None:
             self._cancel_requested = True
-            self.worker.quit()
 
     def _on_progress(self, done: int, total: int) -> None:
         if self._bar is None:
@@ -107,14 +133,15 @@ class BackgroundTask:
         self._bar.n = done
         self._bar.refresh()
 
-    def _on_error(self, exc: BaseException) -> None:
+    def _notify(self, exc: BaseException) -> None:
         if isinstance(exc, Cancelled):
-            show_info(f"{self.label}: cancelled")
-        elif isinstance(exc, (ValueError, OSError, MemoryError)):
-            show_error(f"{self.label}: {exc}")
+            notifications.show_info(f"{self.label}: cancelled")
         else:
-            logger.error("%s failed", self.label, exc_info=exc)
-            show_error(f"{self.label}: unexpected {type(exc).__name__}: {exc}")
+            notifications.show_error(f"{self.label}: {exc}")
+
+    def _on_error(self, exc: BaseException) -> None:
+        logger.error("%s failed", self.label, exc_info=exc)
+        notifications.show_error(f"{self.label}: unexpected {type(exc).__name__}: {exc}")
 
     def _on_finished(self) -> None:
         if self._bar is not None:

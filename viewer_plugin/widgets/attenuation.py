@@ -18,7 +18,13 @@ import numpy as np
 from magicgui.widgets import CheckBox, ComboBox, Container, FloatSpinBox, Label, PushButton
 
 from ..kernels._validate import Cancelled, check_number, fail
-from ._common import image_layer_choices, leading_axis_labels, same_geometry
+from ._common import (
+    connect_layer_events,
+    disconnect_layer_events,
+    image_layer_choices,
+    leading_axis_labels,
+    same_geometry,
+)
 from ._runner import BackgroundTask
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -31,23 +37,6 @@ CAUTION_SHORT = ("Corrected intensities are relative, not calibrated, and deep s
                  "The original layer is kept.")
 NO_MASK = "(none)"
 MODELS = ("exponential", "smooth", "histogram")
-
-
-class _Failed:
-    """An expected stop (bad input, cancel) returned by the worker instead of raised."""
-
-    def __init__(self, exc: BaseException) -> None:
-        self.exc = exc
-
-
-def _guarded(job: Callable[[Callable[[int, int], None]], Any]) -> Callable[..., Any]:
-    def run(progress: Callable[[int, int], None]) -> Any:
-        try:
-            return job(progress)
-        except (ValueError, Cancelled, MemoryError) as exc:
-            return _Failed(exc)
-
-    return run
 
 
 def default_depth_axis(layer: Any) -> int:
@@ -180,9 +169,7 @@ class AttenuationWidget(Container):
         self.max_gain.changed.connect(lambda *_: self._draw())
         self.task.started.append(lambda: self._set_running(True))
         self.task.finished.append(lambda: self._set_running(False))
-        events = self.viewer.layers.events
-        for name in ("inserted", "removed", "reordered"):
-            getattr(events, name).connect(self._refresh_layers)
+        connect_layer_events(self.viewer, self._refresh_layers)
         self.native.destroyed.connect(self._disconnect_viewer)
 
     def _layer_choices(self, _widget: Any = None) -> list[tuple[str, Any]]:
@@ -211,12 +198,7 @@ class AttenuationWidget(Container):
             self._on_layer(self.layer_combo.value)
 
     def _disconnect_viewer(self, *_: Any) -> None:
-        events = self.viewer.layers.events
-        for name in ("inserted", "removed", "reordered"):
-            try:
-                getattr(events, name).disconnect(self._refresh_layers)
-            except (RuntimeError, TypeError, ValueError):
-                pass
+        disconnect_layer_events(self.viewer, self._refresh_layers)
 
     # ------------------------------------------------------------ state
     def _on_layer(self, layer: Any) -> None:
@@ -252,24 +234,22 @@ class AttenuationWidget(Container):
 
     def _start(self, job: Callable[..., Any], on_result: Callable[[Any], None],
                start_thread: bool) -> Any:
-        def done(result: Any) -> None:
-            if isinstance(result, _Failed):
-                self._notify(result.exc)
-            else:
-                on_result(result)
-
-        worker = self.task.start(_guarded(job), on_result=done, start_thread=start_thread)
+        worker = self.task.start(job, on_result=on_result, on_stopped=self._stopped,
+                                 start_thread=start_thread)
         self.last_worker = worker
         return worker
 
-    def _notify(self, exc: BaseException) -> None:
-        from napari.utils.notifications import show_error, show_info
-
-        if isinstance(exc, Cancelled):
-            show_info(f"{self.title}: cancelled")
-        else:
-            show_error(f"{self.title}: {exc}")
+    def _stopped(self, exc: BaseException) -> None:
+        """A job stopped on bad input or cancel (the runner has shown the notification)."""
+        if not isinstance(exc, Cancelled):
             self.notes_label.value = f"Could not finish: {exc}"
+
+    def _notify(self, exc: BaseException) -> None:
+        """Show an error found before a job starts."""
+        from napari.utils.notifications import show_error
+
+        show_error(f"{self.title}: {exc}")
+        self._stopped(exc)
 
     # ------------------------------------------------------------ actions
     def _inputs(self) -> tuple[Any, int, float, str, Any]:

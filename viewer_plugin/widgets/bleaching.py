@@ -14,7 +14,13 @@ from typing import TYPE_CHECKING, Any, Callable
 from magicgui.widgets import ComboBox, Container, FloatSpinBox, Label, PushButton
 
 from ..kernels._validate import Cancelled
-from ._common import image_layer_choices, leading_axis_labels, same_geometry
+from ._common import (
+    connect_layer_events,
+    disconnect_layer_events,
+    image_layer_choices,
+    leading_axis_labels,
+    same_geometry,
+)
 from ._runner import BackgroundTask
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -29,23 +35,6 @@ TOLERANCE_NOTE = ("10 % is a common-practice default, not a published limit: set
                   "can accept before quantifying.")
 TWO_PASS_HELP = ("Two passes over the same stack, the second deepest-first (both stored "
                  "surface first). Needs one-photon data; see docs/bleaching.md.")
-
-
-class _Failed:
-    """An expected stop (bad input, cancel) returned by the worker instead of raised."""
-
-    def __init__(self, exc: BaseException) -> None:
-        self.exc = exc
-
-
-def _guarded(job: Callable[[Callable[[int, int], None]], Any]) -> Callable[..., Any]:
-    def run(progress: Callable[[int, int], None]) -> Any:
-        try:
-            return job(progress)
-        except (ValueError, Cancelled, MemoryError) as exc:
-            return _Failed(exc)
-
-    return run
 
 
 def _labels(layer: Any) -> list[str]:
@@ -151,9 +140,7 @@ class BleachingWidget(Container):
         self.cancel_button.changed.connect(self.task.cancel)
         self.task.started.append(lambda: self._set_running(True))
         self.task.finished.append(lambda: self._set_running(False))
-        events = self.viewer.layers.events
-        for name in ("inserted", "removed", "reordered"):
-            getattr(events, name).connect(self._refresh_layers)
+        connect_layer_events(self.viewer, self._refresh_layers)
         self.native.destroyed.connect(self._disconnect_viewer)
 
     def _layer_choices(self, _widget: Any = None) -> list[tuple[str, Any]]:
@@ -168,12 +155,7 @@ class BleachingWidget(Container):
             self._on_layer(self.layer_combo.value)
 
     def _disconnect_viewer(self, *_: Any) -> None:
-        events = self.viewer.layers.events
-        for name in ("inserted", "removed", "reordered"):
-            try:
-                getattr(events, name).disconnect(self._refresh_layers)
-            except (RuntimeError, TypeError, ValueError):
-                pass
+        disconnect_layer_events(self.viewer, self._refresh_layers)
 
     def _pick_reverse(self) -> None:
         """Offer a second, different layer (preferably one named 'reverse') as reverse pass."""
@@ -279,24 +261,22 @@ class BleachingWidget(Container):
 
     def _start(self, job: Callable[..., Any], on_result: Callable[[Any], None],
                start_thread: bool) -> Any:
-        def done(result: Any) -> None:
-            if isinstance(result, _Failed):
-                self._notify(result.exc)
-            else:
-                on_result(result)
-
-        worker = self.task.start(_guarded(job), on_result=done, start_thread=start_thread)
+        worker = self.task.start(job, on_result=on_result, on_stopped=self._stopped,
+                                 start_thread=start_thread)
         self.last_worker = worker
         return worker
 
-    def _notify(self, exc: BaseException) -> None:
-        from napari.utils.notifications import show_error, show_info
-
-        if isinstance(exc, Cancelled):
-            show_info(f"{self.title}: cancelled")
-        else:
-            show_error(f"{self.title}: {exc}")
+    def _stopped(self, exc: BaseException) -> None:
+        """A job stopped on bad input or cancel (the runner has shown the notification)."""
+        if not isinstance(exc, Cancelled):
             self.verdict.value = f"Could not check: {exc}"
+
+    def _notify(self, exc: BaseException) -> None:
+        """Show an error found before a job starts."""
+        from napari.utils.notifications import show_error
+
+        show_error(f"{self.title}: {exc}")
+        self._stopped(exc)
 
     # ------------------------------------------------------------ actions
     def check(self, *_: Any, start_thread: bool = True) -> Any:
