@@ -35,6 +35,26 @@ def check_output_path(path: str | os.PathLike[str], *, overwrite: bool, name: st
     return out
 
 
+def check_outputs(args: Any, options: tuple[str, ...] = ("output", "report", "plot")) -> dict[str, Path | None]:
+    """Check every output option of *args* before any work: no silent overwrite, distinct files.
+
+    ``--output`` must name an OME-TIFF. Returns option name -> path (or None when not given).
+    """
+    out: dict[str, Path | None] = {}
+    for option in options:
+        value = getattr(args, option)
+        out[option] = None if value is None else check_output_path(
+            value, overwrite=args.overwrite, name=f"--{option}")
+    paths = [p.resolve() for p in out.values() if p is not None]
+    if len(set(paths)) != len(paths):
+        names = "/".join(f"--{o}" for o in options)
+        raise CommandError(f"{names}: expected different files, got the same path twice")
+    target = out.get("output")
+    if target is not None and not target.name.lower().endswith((".ome.tif", ".ome.tiff")):
+        raise CommandError(f"--output: expected a .ome.tif file name, got {target.name}")
+    return out
+
+
 def atomic_write_bytes(path: Path, write: Callable[[Path], None]) -> Path:
     """Write through *write(tmp)* atomically (see :func:`viewer_plugin.io._atomic.atomic_write`)."""
     return atomic_write(path, write)

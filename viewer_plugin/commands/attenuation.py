@@ -20,7 +20,14 @@ from typing import Any
 import numpy as np
 
 from .. import __version__
-from ._common import CommandError, TerminalProgress, atomic_write_bytes, check_output_path, write_json
+from ._common import (
+    CommandError,
+    TerminalProgress,
+    atomic_write_bytes,
+    check_output_path,
+    check_outputs,
+    write_json,
+)
 
 SPATIAL = "ZYX"
 
@@ -61,20 +68,6 @@ def _axis_index(text: str) -> int:
     raise CommandError(f"--axis: expected z, y, x or an index 0-2, got {text!r}")
 
 
-def _outputs(args: argparse.Namespace) -> dict[str, Path | None]:
-    out: dict[str, Path | None] = {}
-    for option in ("output", "report", "plot"):
-        value = getattr(args, option)
-        out[option] = None if value is None else check_output_path(
-            value, overwrite=args.overwrite, name=f"--{option}")
-    paths = [p.resolve() for p in out.values() if p is not None]
-    if len(set(paths)) != len(paths):
-        raise CommandError("--output/--report/--plot: expected different files, got the same path twice")
-    if out["output"] is not None and not out["output"].name.lower().endswith((".ome.tif", ".ome.tiff")):
-        raise CommandError(f"--output: expected a .ome.tif file name, got {out['output'].name}")
-    return out
-
-
 def _channel_views(stack: Any, channel: int | None) -> tuple[list[int], Any, str]:
     """Channel indices to process, the data with C first (if any), and the spatial axes."""
     axes = stack.axes
@@ -103,7 +96,7 @@ def run(args: argparse.Namespace) -> int:
     from ..io import read_stack
     from ..kernels._validate import check_number
 
-    outputs = _outputs(args)
+    outputs = check_outputs(args)
     axis = _axis_index(args.axis)
     check_number(args.max_gain, name="--max-gain", low=1.0, allow_inf=True)
     stack = read_stack(args.input)

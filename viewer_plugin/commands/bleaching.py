@@ -25,7 +25,7 @@ from ._common import (
     CommandError,
     TerminalProgress,
     atomic_write_bytes,
-    check_output_path,
+    check_outputs,
     write_json,
 )
 
@@ -81,16 +81,7 @@ def parse_tolerance(text: str) -> float:
 
 
 def _outputs(args: argparse.Namespace) -> dict[str, Path | None]:
-    out: dict[str, Path | None] = {}
-    for option in ("output", "report", "plot"):
-        value = getattr(args, option)
-        out[option] = None if value is None else check_output_path(
-            value, overwrite=args.overwrite, name=f"--{option}")
-    paths = [p.resolve() for p in out.values() if p is not None]
-    if len(set(paths)) != len(paths):
-        raise CommandError("--output/--report/--plot: expected different files, got the same path twice")
-    if out["output"] is not None and not out["output"].name.lower().endswith((".ome.tif", ".ome.tiff")):
-        raise CommandError(f"--output: expected a .ome.tif file name, got {out['output'].name}")
+    out = check_outputs(args)
     if out["output"] is not None and args.reverse is not None:
         raise CommandError("--output: not available with --reverse; the two-pass mode only "
                            "measures (correct attenuation with 'stackdepth attenuation')")

@@ -10,7 +10,6 @@ below the true level by an amount that grows with the noise.
 from __future__ import annotations
 
 from dataclasses import dataclass
-import warnings
 from typing import Any
 
 import numpy as np
