@@ -12,11 +12,14 @@ from viewer_plugin.samples import sample_fibre_slab  # noqa: E402
 
 
 @pytest.mark.gui
-def test_demo_viewer_has_five_docked_widgets(make_napari_viewer, tmp_path):
+def test_demo_viewer_has_five_docked_widgets(make_napari_viewer, qtbot, tmp_path):
     viewer = make_napari_viewer(show=True)
     widgets = open_in_viewer(viewer, sample_fibre_slab())
     assert len(widgets) == 5
-    assert [layer.name for layer in viewer.layers] == ["fibre slab"]
+    # depth at a glance: the depth colour preview arrives without a click
+    qtbot.waitUntil(lambda: widgets[0].preview_worker is None and widgets[0].preview_layer is not None,
+                    timeout=120_000)
+    assert [layer.name for layer in viewer.layers] == ["fibre slab", "fibre slab depth colour (preview)"]
     layer = viewer.layers["fibre slab"]
     assert tuple(layer.scale) == pytest.approx((1.0, 0.3, 0.3))
     assert "truth" in layer.metadata

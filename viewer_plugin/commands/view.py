@@ -54,7 +54,7 @@ def run(args: argparse.Namespace) -> int:
             viewer.screenshot(args.screenshot, canvas_only=False)
             viewer.close()
 
-        QTimer.singleShot(2500, shoot)
+        QTimer.singleShot(6000, shoot)  # after numba warm-up and the first preview
     napari.run()
     return 0
 
@@ -76,4 +76,6 @@ def open_in_viewer(viewer: Any, layers: list[tuple[Any, dict[str, Any], str]]) -
         for dock in docks[1:]:
             main_window.tabifyDockWidget(docks[0], dock)
         docks[0].raise_()
+    if layers and hasattr(widgets[0], "update_preview"):
+        widgets[0].update_preview()  # depth at a glance: the downsampled depth colour preview
     return widgets
