@@ -13,24 +13,15 @@ from __future__ import annotations
 import os
 import sys
 import tempfile
-import time
 from pathlib import Path
 
 os.environ.setdefault("NAPARI_CONFIG", os.path.join(tempfile.mkdtemp(), "settings.yaml"))
 
+from _shots_common import wait  # noqa: E402  (docs/ is on sys.path for these scripts)
+
 IMAGES = Path(__file__).resolve().parent / "images"
 
 
-def wait(app, worker, widget, timeout=120.0) -> None:
-    """Start *worker* and process events until the widget's task has finished."""
-    worker.start()
-    start = time.monotonic()
-    while widget.task.running and time.monotonic() - start < timeout:
-        app.processEvents()
-        time.sleep(0.02)
-    for _ in range(20):
-        app.processEvents()
-        time.sleep(0.02)
 
 
 def main() -> int:

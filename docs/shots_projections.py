@@ -15,29 +15,17 @@ import os
 import shutil
 import sys
 import tempfile
-import time
 from pathlib import Path
 
 os.environ.setdefault("NAPARI_CONFIG", os.path.join(tempfile.mkdtemp(), "settings.yaml"))
 
+from _shots_common import settle, wait  # noqa: E402  (docs/ is on sys.path for these scripts)
+
 IMAGES = Path(__file__).resolve().parent / "images"
 
 
-def settle(app, seconds: float = 0.5) -> None:
-    end = time.monotonic() + seconds
-    while time.monotonic() < end:
-        app.processEvents()
-        time.sleep(0.02)
 
 
-def wait(app, worker, widget, timeout: float = 300.0) -> None:
-    """Start *worker* and process events until the widget's task has finished."""
-    worker.start()
-    start = time.monotonic()
-    while widget.task.running and time.monotonic() - start < timeout:
-        app.processEvents()
-        time.sleep(0.02)
-    settle(app)
 
 
 def only_visible(viewer, *names: str) -> None:
