@@ -17,7 +17,7 @@ from typing import TYPE_CHECKING, Any, Callable
 import numpy as np
 from magicgui.widgets import CheckBox, ComboBox, Container, FloatSpinBox, Label, PushButton
 
-from ..kernels._validate import Cancelled, check_number, fail
+from ..kernels._validate import check_number, fail
 from ._common import (
     connect_layer_events,
     disconnect_layer_events,
@@ -25,7 +25,7 @@ from ._common import (
     leading_axis_labels,
     same_geometry,
 )
-from ._runner import BackgroundTask
+from ._runner import BackgroundTask, TaskWidgetMixin
 
 if TYPE_CHECKING:  # pragma: no cover
     import napari
@@ -103,9 +103,11 @@ def labels_mask(labels: Any, image: Any, axis: int) -> np.ndarray:
          f"<shape {data.shape}>")
 
 
-class AttenuationWidget(Container):
+class AttenuationWidget(TaskWidgetMixin, Container):
     """Dock widget "Depth attenuation" (see the module docstring)."""
 
+    failure_label = "notes_label"
+    failure_prefix = "Could not finish"
     title = "Depth attenuation"
 
     def __init__(self, napari_viewer: "napari.Viewer") -> None:
@@ -231,25 +233,6 @@ class AttenuationWidget(Container):
         self.fit_button.enabled = not running
         self.cancel_button.enabled = running
         self.correct_button.enabled = not running and self.fit_result is not None
-
-    def _start(self, job: Callable[..., Any], on_result: Callable[[Any], None],
-               start_thread: bool) -> Any:
-        worker = self.task.start(job, on_result=on_result, on_stopped=self._stopped,
-                                 start_thread=start_thread)
-        self.last_worker = worker
-        return worker
-
-    def _stopped(self, exc: BaseException) -> None:
-        """A job stopped on bad input or cancel (the runner has shown the notification)."""
-        if not isinstance(exc, Cancelled):
-            self.notes_label.value = f"Could not finish: {exc}"
-
-    def _notify(self, exc: BaseException) -> None:
-        """Show an error found before a job starts."""
-        from napari.utils.notifications import show_error
-
-        show_error(f"{self.title}: {exc}")
-        self._stopped(exc)
 
     # ------------------------------------------------------------ actions
     def _inputs(self) -> tuple[Any, int, float, str, Any]:

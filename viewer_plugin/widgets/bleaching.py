@@ -13,7 +13,6 @@ from typing import TYPE_CHECKING, Any, Callable
 
 from magicgui.widgets import ComboBox, Container, FloatSpinBox, Label, PushButton
 
-from ..kernels._validate import Cancelled
 from ._common import (
     connect_layer_events,
     disconnect_layer_events,
@@ -21,7 +20,7 @@ from ._common import (
     leading_axis_labels,
     same_geometry,
 )
-from ._runner import BackgroundTask
+from ._runner import BackgroundTask, TaskWidgetMixin
 
 if TYPE_CHECKING:  # pragma: no cover
     import napari
@@ -69,7 +68,7 @@ def _wrap(label: Label) -> Label:
     return label
 
 
-class BleachingWidget(Container):
+class BleachingWidget(TaskWidgetMixin, Container):
     """Check a time series (or one stack) for photobleaching; correct it; or separate it.
 
     Parameters
@@ -77,6 +76,8 @@ class BleachingWidget(Container):
     napari_viewer : napari.Viewer
     """
 
+    failure_label = "verdict"
+    failure_prefix = "Could not check"
     title = "Bleaching check"
 
     def __init__(self, napari_viewer: "napari.Viewer") -> None:
@@ -258,25 +259,6 @@ class BleachingWidget(Container):
             "tolerance": check_number(float(self.tolerance.value) / 100, name="Tolerance", low=0,
                                       high=1, low_open=True, high_open=True),
         }
-
-    def _start(self, job: Callable[..., Any], on_result: Callable[[Any], None],
-               start_thread: bool) -> Any:
-        worker = self.task.start(job, on_result=on_result, on_stopped=self._stopped,
-                                 start_thread=start_thread)
-        self.last_worker = worker
-        return worker
-
-    def _stopped(self, exc: BaseException) -> None:
-        """A job stopped on bad input or cancel (the runner has shown the notification)."""
-        if not isinstance(exc, Cancelled):
-            self.verdict.value = f"Could not check: {exc}"
-
-    def _notify(self, exc: BaseException) -> None:
-        """Show an error found before a job starts."""
-        from napari.utils.notifications import show_error
-
-        show_error(f"{self.title}: {exc}")
-        self._stopped(exc)
 
     # ------------------------------------------------------------ actions
     def check(self, *_: Any, start_thread: bool = True) -> Any:
