@@ -7,13 +7,13 @@ the check of the estimate itself against outside references is in tests/kernels.
 from __future__ import annotations
 
 import json
-import subprocess
-import sys
 
 import numpy as np
 import pytest
 
 from viewer_plugin.cli import main
+from tests.cli._console import assert_one_line_error
+from tests.cli._console import run_cli as _run
 from viewer_plugin.demo import fibre_slab
 from viewer_plugin.io import read_stack, write_ome_tiff
 
@@ -26,19 +26,13 @@ def slab_file(tmp_path_factory):
     return path, demo
 
 
-def run_cli(*args: str) -> subprocess.CompletedProcess:
-    """The real console entry point in a fresh interpreter, as a user runs it."""
-    return subprocess.run([sys.executable, "-m", "viewer_plugin.cli", "attenuation", *args],
-                          capture_output=True, text=True, timeout=300)
 
 
-def assert_one_line_error(result, *fragments: str) -> None:
-    assert result.returncode == 2, result.stderr
-    lines = result.stderr.strip().splitlines()
-    assert len(lines) == 1 and lines[0].startswith("stackdepth: error:"), result.stderr
-    assert "Traceback" not in result.stderr
-    for fragment in fragments:
-        assert fragment in lines[0]
+
+
+def run_cli(*args: str):
+    """`stackdepth attenuation ARGS` through the real console entry point."""
+    return _run("attenuation", *args)
 
 
 def test_report_plot_and_corrected_stack(slab_file, tmp_path, capsys):

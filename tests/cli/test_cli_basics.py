@@ -2,30 +2,17 @@
 
 from __future__ import annotations
 
-import subprocess
-import sys
 
 import pytest
 
 from viewer_plugin import __version__
 from viewer_plugin.cli import main
+from tests.cli._console import assert_one_line_error, run_cli
 from viewer_plugin.io import read_stack
 
 
-def run_cli(*args: str) -> subprocess.CompletedProcess:
-    """Run the real console entry point in a fresh interpreter, as a user would."""
-    return subprocess.run([sys.executable, "-m", "viewer_plugin.cli", *args], capture_output=True,
-                          text=True, timeout=300)
 
 
-def assert_one_line_error(result, *fragments: str) -> None:
-    assert result.returncode == 2, result.stderr
-    lines = result.stderr.strip().splitlines()
-    assert len(lines) == 1, result.stderr
-    assert lines[0].startswith("stackdepth: error:")
-    assert "Traceback" not in result.stderr
-    for fragment in fragments:
-        assert fragment in lines[0]
 
 
 def test_version_and_help(capsys):

@@ -7,30 +7,17 @@ brightest voxel with ``numpy.argmax`` (numpy documentation: first occurrence on 
 from __future__ import annotations
 
 import json
-import subprocess
-import sys
 
 import numpy as np
 import pytest
 
 from viewer_plugin.cli import main
+from tests.cli._console import assert_one_line_error, run_cli
 from viewer_plugin.io import read_stack, write_ome_tiff
 
 
-def run_cli(*args: str) -> subprocess.CompletedProcess:
-    """The real console entry point in a fresh interpreter, as a user would run it."""
-    return subprocess.run([sys.executable, "-m", "viewer_plugin.cli", *map(str, args)],
-                          capture_output=True, text=True, timeout=300)
 
 
-def assert_one_line_error(result, *fragments: str) -> None:
-    assert result.returncode == 2, result.stderr
-    lines = result.stderr.strip().splitlines()
-    assert len(lines) == 1, result.stderr
-    assert lines[0].startswith("stackdepth: error:")
-    assert "Traceback" not in result.stderr
-    for fragment in fragments:
-        assert fragment in lines[0], lines[0]
 
 
 def _bars(shape=(10, 32, 40), seed=0):
