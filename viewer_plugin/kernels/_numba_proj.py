@@ -23,8 +23,11 @@ Nothing here validates input: the public functions in :mod:`.projections` do.
 from __future__ import annotations
 
 import numpy as np
+from llvmlite import ir
 from numba import njit, prange, types
-from numba.extending import overload
+from numba.core import cgutils
+from numba.extending import intrinsic, overload
+from numba.np.numpy_support import as_dtype
 
 __all__ = [
     "brightest_update",
@@ -34,7 +37,10 @@ __all__ = [
     "blend_update_float",
     "blend_rgb_update_lut",
     "blend_rgb_update_float",
-    "colour_from_depth",
+    "finish_depth_index",
+    "finish_depth_sums",
+    "finish_brightness",
+    "finish_colour",
 ]
 
 _OPTS = dict(parallel=True, cache=True, nogil=True)
@@ -52,13 +58,93 @@ def _top_impl(x, y):
     return lambda x, y: max(x, y)  # integer max vectorises better than fmax
 
 
+def _ordered(which: str):
+    """``llvm.maxnum``/``llvm.minnum`` flagged *no NaN*: one vmaxps/vminps.
+
+    Only for operands that cannot be NaN (the result is unspecified
+    otherwise). numpy's maximum/fmax must propagate or skip NaN and cost three
+    instructions per vector; a plain ``a if a > b else b`` store becomes a
+    masked store once vectorised, which is slow on AMD processors.
+    """
+
+    @intrinsic
+    def _impl(typingctx, a, b):
+        if not (isinstance(a, types.Float) and a == b):
+            return None
+
+        def codegen(context, builder, signature, args):
+            ty = args[0].type
+            bits = 32 if ty == ir.FloatType() else 64
+            fn = cgutils.get_or_insert_function(
+                builder.module, ir.FunctionType(ty, [ty, ty]), f"llvm.{which}.f{bits}")
+            return builder.call(fn, args, fastmath=("nnan", "nsz"))
+
+        return a(a, b), codegen
+
+    return _impl
+
+
+_max_ordered = _ordered("maxnum")
+_min_ordered = _ordered("minnum")
+
+
+def _unit(x, lo, scale):
+    """Normalised intensity ``clip((x - lo) * scale, 0, 1)`` in float32; NaN -> 0."""
+
+
+@overload(_unit)
+def _unit_impl(x, lo, scale):
+    if isinstance(x, types.Integer):
+        def clamp_int(x, lo, scale):  # no NaN possible: one max and one min
+            u = (np.float32(x) - lo) * scale
+            return _min_ordered(_max_ordered(u, np.float32(0.0)), np.float32(1.0))
+        return clamp_int
+
+    def clamp_float(x, lo, scale):  # NaN compares false and becomes 0
+        u = (np.float32(x) - lo) * scale
+        u = u if u > np.float32(0.0) else np.float32(0.0)
+        return u if u < np.float32(1.0) else np.float32(1.0)
+    return clamp_float
+
+
+def _takes(x, cur, i):
+    """Whether value *x* replaces the running maximum *cur* (index *i*)."""
+
+
+@overload(_takes, inline="always")
+def _takes_impl(x, cur, i):
+    if isinstance(x, types.Integer):
+        # the maximum starts at the dtype's minimum with index -1: a ray of
+        # only that value keeps -1 (read as 0, numpy's argmax) -- no first-seen test
+        return lambda x, cur, i: x > cur
+    return lambda x, cur, i: (x > cur) | ((i < 0) & (x == x))
+
+
+def _as_index(i, value):
+    """*value* cast to the integer type of the index *i* (a scalar or an array)."""
+
+
+@overload(_as_index, inline="always")
+def _as_index_impl(i, value):
+    kind = as_dtype(i.dtype if isinstance(i, types.Array) else i).type
+    return lambda i, value: kind(value)
+
+
+@njit(inline="always")
+def _replace(i, take, zz):
+    """``zz if take else i`` without a branch (a select would become a masked store)."""
+    return i ^ ((i ^ zz) & -_as_index(i, take))
+
+
 @njit(**_OPTS)
 def brightest_update(block, z0, vals, idx):
     """Fold *block* into (maximum, index of first maximum); NaN is skipped.
 
     State: ``vals`` (block dtype; NaN for floats and the dtype's minimum for
-    integers at the start) and ``idx`` (int32, -1 = no number seen yet).
-    Ties keep the earlier index; ``fmax`` ignores NaN.
+    integers at the start) and ``idx`` (int16 or int32, -1 = nothing above
+    the starting value seen yet). Ties keep the earlier index; ``fmax``
+    ignores NaN. int16 indices (stacks of fewer than 32768 slices) halve the
+    vector width of the index update.
     """
     nz, nr, nc = block.shape
     for r in prange(nr):
@@ -66,16 +152,13 @@ def brightest_update(block, z0, vals, idx):
         ix = idx[r]
         for z in range(nz):
             row = block[z, r]
-            zz = np.int32(z0 + z)
+            zz = _as_index(ix, z0 + z)
             for c in range(nc):
                 x = row[c]
                 cur = v[c]
                 i = ix[c]
-                take = (x > cur) | ((i < 0) & (x == x))
-                # branch-free blends: a conditional store would become a slow
-                # masked store (vmaskmov) once vectorised
                 v[c] = _top(x, cur)
-                ix[c] = i ^ ((i ^ zz) & -np.int32(take))
+                ix[c] = _replace(i, _takes(x, cur, i), zz)
 
 
 #: Planes summed in float32 before the partial sums go into float64 state.
@@ -88,11 +171,14 @@ def weighted_update(block, z0, lo, scale, vals, sum_u, sum_uz):
 
     ``vals`` starts at the dtype's minimum for integers and NaN for floats.
     u is float32; groups of up to 16 planes are summed in float32 (exact to
-    ~1e-6 relative) and then added to the float64 accumulators.
+    ~1e-6 relative) and then added to the float64 accumulators. Four planes
+    are combined in registers before the group sums are touched.
     """
     nz, nr, nc = block.shape
     lo32 = np.float32(lo)
     sc32 = np.float32(scale)
+    two = np.float32(2.0)
+    three = np.float32(3.0)
     for r in prange(nr):
         v = vals[r]
         su = sum_u[r]
@@ -100,19 +186,40 @@ def weighted_update(block, z0, lo, scale, vals, sum_u, sum_uz):
         gu = np.empty(nc, np.float32)
         guz = np.empty(nc, np.float32)
         for g0 in range(0, nz, _GROUP):
+            g1 = min(nz, g0 + _GROUP)
             gu[:] = 0.0
             guz[:] = 0.0
-            for z in range(g0, min(nz, g0 + _GROUP)):
+            z = g0
+            while z + 4 <= g1:
+                r0 = block[z, r]
+                r1 = block[z + 1, r]
+                r2 = block[z + 2, r]
+                r3 = block[z + 3, r]
+                zf = np.float32(z - g0)
+                for c in range(nc):
+                    x0 = r0[c]
+                    x1 = r1[c]
+                    x2 = r2[c]
+                    x3 = r3[c]
+                    v[c] = _top(_top(_top(x0, x1), _top(x2, x3)), v[c])
+                    u0 = _unit(x0, lo32, sc32)
+                    u1 = _unit(x1, lo32, sc32)
+                    u2 = _unit(x2, lo32, sc32)
+                    u3 = _unit(x3, lo32, sc32)
+                    s4 = (u0 + u1) + (u2 + u3)
+                    gu[c] += s4
+                    guz[c] += zf * s4 + (u1 + two * u2 + three * u3)
+                z += 4
+            while z < g1:
                 row = block[z, r]
                 zf = np.float32(z - g0)
                 for c in range(nc):
                     x = row[c]
                     v[c] = _top(x, v[c])
-                    u = (np.float32(x) - lo32) * sc32
-                    u = u if u > np.float32(0.0) else np.float32(0.0)
-                    u = u if u < np.float32(1.0) else np.float32(1.0)
+                    u = _unit(x, lo32, sc32)
                     gu[c] += u
                     guz[c] += u * zf
+                z += 1
             base = np.float64(z0 + g0)
             for c in range(nc):
                 su[c] += gu[c]
@@ -123,8 +230,9 @@ def weighted_update(block, z0, lo, scale, vals, sum_u, sum_uz):
 def tinted_update(block, z0, lo, scale, colours, vals, idx, tint):
     """Fold *block* into (max, argmax, channel-wise max of colour * u).
 
-    ``colours[z]`` is the (already gamma-adjusted) colour of global slice z;
-    ``tint`` is planar, shape (3, rows, cols), float32.
+    ``colours[z]`` is the (already gamma-adjusted, non-negative) colour of
+    global slice z; ``tint`` is planar, shape (3, rows, cols), float32,
+    starting at 0. ``idx`` is int16 or int32 as in :func:`brightest_update`.
     """
     nz, nr, nc = block.shape
     lo32 = np.float32(lo)
@@ -137,7 +245,7 @@ def tinted_update(block, z0, lo, scale, colours, vals, idx, tint):
         t2 = tint[2, r]
         for z in range(nz):
             row = block[z, r]
-            zz = np.int32(z0 + z)
+            zz = _as_index(ix, z0 + z)
             c0 = np.float32(colours[z0 + z, 0])
             c1 = np.float32(colours[z0 + z, 1])
             c2 = np.float32(colours[z0 + z, 2])
@@ -145,15 +253,12 @@ def tinted_update(block, z0, lo, scale, colours, vals, idx, tint):
                 x = row[c]
                 cur = v[c]
                 i = ix[c]
-                take = (x > cur) | ((i < 0) & (x == x))
                 v[c] = _top(x, cur)
-                ix[c] = i ^ ((i ^ zz) & -np.int32(take))
-                u = (np.float32(x) - lo32) * sc32
-                u = u if u > np.float32(0.0) else np.float32(0.0)
-                u = u if u < np.float32(1.0) else np.float32(1.0)
-                t0[c] = np.maximum(t0[c], c0 * u)
-                t1[c] = np.maximum(t1[c], c1 * u)
-                t2[c] = np.maximum(t2[c], c2 * u)
+                ix[c] = _replace(i, _takes(x, cur, i), zz)
+                u = _unit(x, lo32, sc32)  # never NaN, so the ordered max is exact
+                t0[c] = _max_ordered(t0[c], c0 * u)
+                t1[c] = _max_ordered(t1[c], c1 * u)
+                t2[c] = _max_ordered(t2[c], c2 * u)
 
 
 @njit(**_OPTS)
@@ -250,29 +355,85 @@ def blend_rgb_update_float(block, z0, lo, scale, kappa, reverse, colours, colour
                 tr[c] = t * keep
 
 
-@njit(**_OPTS)
-def colour_from_depth(depth_um, bright, d0, span, lut, rgb):
-    """rgb = lut[index(depth)] * bright for 2-D (rows, cols) inputs.
+# --- aggregate: from the final state to depth, brightness and colour -----------
+
+@njit(inline="always")
+def _brightness_of(x, lo, scale, gamma):
+    """``clip((x - lo) * scale, 0, 1) ** gamma`` in float64; NaN gives 0."""
+    b = (np.float64(x) - lo) * scale
+    b = b if b > 0.0 else 0.0
+    b = b if b < 1.0 else 1.0
+    return b if gamma == 1.0 else b ** gamma
+
+
+@njit(inline="always")
+def _paint(depth, bright, d0, span, lut, out):
+    """out[:] = lut[index(depth)] * bright; black where depth is NaN.
 
     ``index = clip(floor(t * N), 0, N - 1)`` with ``t = (depth - d0) / span``
     clipped to [0, 1] -- the rule of matplotlib's ``Colormap.__call__``.
-    NaN depth gives black.
     """
-    nr, nc = depth_um.shape
+    if depth != depth:
+        out[0] = 0.0
+        out[1] = 0.0
+        out[2] = 0.0
+        return
     n = lut.shape[0]
+    t = (depth - d0) / span
+    t = min(max(t, 0.0), 1.0)
+    j = min(int(t * n), n - 1)
+    out[0] = lut[j, 0] * bright
+    out[1] = lut[j, 1] * bright
+    out[2] = lut[j, 2] * bright
+
+
+@njit(inline="always")
+def _index_depth(x, i, lo, z_step):
+    """Depth in µm of slice *i* when *x* exceeds lo, else NaN (-1 reads as 0)."""
+    if x > lo:  # False for NaN
+        return np.float64(max(np.int64(i), 0)) * z_step
+    return np.nan
+
+
+@njit(**_OPTS)
+def finish_depth_index(vals, idx, lo, z_step, depth):
+    """depth = index * z_step where vals > lo, else NaN; 2-D (rows, cols), float32 out."""
+    nr, nc = vals.shape
     for r in prange(nr):
         for c in range(nc):
-            d = np.float64(depth_um[r, c])
-            b = bright[r, c]
-            if d != d:
-                rgb[r, c, 0] = 0.0
-                rgb[r, c, 1] = 0.0
-                rgb[r, c, 2] = 0.0
-                continue
-            t = (d - d0) / span
-            t = min(max(t, 0.0), 1.0)
-            j = min(int(t * n), n - 1)
-            rgb[r, c, 0] = lut[j, 0] * b
-            rgb[r, c, 1] = lut[j, 1] * b
-            rgb[r, c, 2] = lut[j, 2] * b
+            depth[r, c] = _index_depth(vals[r, c], idx[r, c], lo, z_step)
 
+
+@njit(**_OPTS)
+def finish_depth_sums(sum_u, sum_uz, z_step, depth):
+    """depth = sum_uz / sum_u * z_step (NaN where sum_u is 0); 2-D, float32 out."""
+    nr, nc = sum_u.shape
+    for r in prange(nr):
+        for c in range(nc):
+            w = sum_u[r, c]
+            depth[r, c] = sum_uz[r, c] / w * z_step if w > 0.0 else np.nan
+
+
+@njit(**_OPTS)
+def finish_brightness(vals, lo, scale, gamma, bright):
+    """bright = clip((vals - lo) * scale, 0, 1) ** gamma (NaN -> 0); 2-D, float32 out."""
+    nr, nc = vals.shape
+    for r in prange(nr):
+        for c in range(nc):
+            bright[r, c] = _brightness_of(vals[r, c], lo, scale, gamma)
+
+
+@njit(**_OPTS)
+def finish_colour(vals, depth, lo, scale, gamma, d0, span, lut, bright, rgb):
+    """Brightness and ``rgb = lut[index(depth)] * brightness`` (black where depth is NaN).
+
+    2-D ``vals`` and float32 ``depth`` (rows, cols); float32 outputs
+    ``bright`` (rows, cols) and ``rgb`` (rows, cols, 3). The colour is taken
+    from the stored float32 values, so it matches what is returned.
+    """
+    nr, nc = vals.shape
+    for r in prange(nr):
+        for c in range(nc):
+            b = np.float32(_brightness_of(vals[r, c], lo, scale, gamma))
+            bright[r, c] = b
+            _paint(np.float64(depth[r, c]), np.float64(b), d0, span, lut, rgb[r, c])

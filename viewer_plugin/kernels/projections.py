@@ -159,10 +159,19 @@ def _initial_values(shape: tuple, kdtype: np.dtype) -> np.ndarray:
     return np.full(shape, np.iinfo(kdtype).min, kdtype)
 
 
+def _index_dtype(n: int) -> np.dtype:
+    """Slice-index state: int16 below 32768 slices (half the vector width), else int32."""
+    return np.dtype(np.int16 if n < 2**15 else np.int32)
+
+
 def _fold_brightest(v: Any, progress: Progress) -> tuple[np.ndarray, np.ndarray]:
-    """(values, index) of the brightest point; index -1 on all-NaN rays."""
+    """(values, index) of the brightest point; index -1 on all-NaN rays.
+
+    For integers the index also stays -1 where the ray holds only the
+    dtype's minimum (read as 0, as numpy.argmax).
+    """
     vals = _initial_values(v.shape[1:], kernel_dtype(v.dtype))
-    idx = np.full(v.shape[1:], -1, np.int32)
+    idx = np.full(v.shape[1:], -1, _index_dtype(v.shape[0]))
 
     def fold(block: np.ndarray, z0: int, index: tuple) -> None:
         nb.brightest_update(block, z0, vals[index], idx[index])
@@ -172,17 +181,9 @@ def _fold_brightest(v: Any, progress: Progress) -> tuple[np.ndarray, np.ndarray]
     return vals, idx
 
 
-def _brightness(vals: np.ndarray, lo: float, hi: float, gamma: float) -> np.ndarray:
-    """``clip((vals - lo) / (hi - lo), 0, 1) ** gamma`` as float32; NaN -> 0."""
-    out = vals.astype(np.float32)
-    out -= np.float32(lo)
-    out *= np.float32(1.0 / (hi - lo))
-    np.clip(out, 0.0, 1.0, out=out)
-    if vals.dtype.kind == "f":
-        out[np.isnan(out)] = 0.0
-    if gamma != 1.0:
-        np.power(out, np.float32(gamma), out=out)
-    return out
+def _rows(a: np.ndarray, tail: int = 1) -> np.ndarray:
+    """View of a C-contiguous array with all leading axes merged: (rows, *last tail axes)."""
+    return a.reshape((-1,) + a.shape[a.ndim - tail:])
 
 
 # --- brightest point ------------------------------------------------------------
@@ -231,77 +232,80 @@ def brightest_point(stack: Any, *, axis: int = 0, progress: Progress = None) -> 
     """
     v, _ = _depth_view(stack, axis)
     vals, idx = _fold_brightest(v, progress)
-    np.maximum(idx, 0, out=idx)
+    depth = np.maximum(idx, 0).astype(np.int32, copy=False)
     values = vals if vals.dtype == v.dtype else vals.astype(v.dtype)
-    return BrightestPoint(values=values, depth=idx)
+    return BrightestPoint(values=values, depth=depth)
 
 
 # --- depth-coded projection -----------------------------------------------------
 
-def _colourize(depth_um: np.ndarray, bright: np.ndarray, d_range: tuple, lut: np.ndarray) -> np.ndarray:
-    """RGB float32 (..., 3) from depth (through *lut*) times brightness."""
-    shape = depth_um.shape
-    rgb = np.empty(shape + (3,), np.float32)
+def _finish_colour(vals: np.ndarray, depth: np.ndarray, lo: float, scale: float, gamma: float,
+                   d_range: tuple, lut: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """(brightness, rgb) float32 from the maximum and the depth of each pixel."""
+    bright = np.empty(depth.shape, np.float32)
+    rgb = np.empty(depth.shape + (3,), np.float32)
     d0, d1 = d_range
     with _KERNEL_LOCK:
-        nb.colour_from_depth(
-            depth_um.reshape(-1, shape[-1]), bright.reshape(-1, shape[-1]),
-            float(d0), float(d1 - d0), lut, rgb.reshape(-1, shape[-1], 3),
-        )
-    return rgb
+        nb.finish_colour(_rows(vals), _rows(depth), lo, scale, gamma, d0, d1 - d0, lut,
+                         _rows(bright), _rows(rgb, 2))
+    return bright, rgb
 
 
-def _coded_brightest(v: Any, lo: float, hi: float, z_step: float, progress: Progress) -> tuple:
-    """(values, depth_um) of the "brightest" method."""
+def _coded_brightest(v: Any, lo: float, scale: float, gamma: float, z_step: float,
+                     d_range: tuple, lut: np.ndarray, progress: Progress) -> tuple:
+    """(depth_um, brightness, rgb) of the "brightest" method."""
     vals, idx = _fold_brightest(v, progress)
-    depth = idx.astype(np.float32)
+    depth = np.empty(vals.shape, np.float32)
+    with _KERNEL_LOCK:
+        nb.finish_depth_index(_rows(vals), _rows(idx), lo, z_step, _rows(depth))
     del idx
-    depth *= np.float32(z_step)
-    depth[~(vals > lo)] = np.nan
-    return vals, depth
+    return (depth, *_finish_colour(vals, depth, lo, scale, gamma, d_range, lut))
 
 
-def _coded_weighted(v: Any, lo: float, hi: float, z_step: float, progress: Progress) -> tuple:
+def _coded_weighted(v: Any, lo: float, scale: float, gamma: float, z_step: float,
+                    d_range: tuple, lut: np.ndarray, progress: Progress) -> tuple:
+    """(depth_um, brightness, rgb) of the "weighted" method."""
     others = v.shape[1:]
     vals = _initial_values(others, kernel_dtype(v.dtype))
     sum_u = np.zeros(others, np.float64)
     sum_uz = np.zeros(others, np.float64)
-    scale = 1.0 / (hi - lo)
 
     def fold(block: np.ndarray, z0: int, index: tuple) -> None:
         nb.weighted_update(block, z0, lo, scale, vals[index], sum_u[index], sum_uz[index])
 
     with _KERNEL_LOCK:
         fold_chunks(v, fold, progress=progress)
-    np.divide(sum_uz, sum_u, out=sum_uz, where=sum_u > 0)
-    sum_uz[~(sum_u > 0)] = np.nan
-    del sum_u
-    sum_uz *= z_step
-    return vals, sum_uz.astype(np.float32)
+        depth = np.empty(others, np.float32)
+        nb.finish_depth_sums(_rows(sum_u), _rows(sum_uz), z_step, _rows(depth))
+    del sum_u, sum_uz  # before the colour image is allocated: lower peak memory
+    return (depth, *_finish_colour(vals, depth, lo, scale, gamma, d_range, lut))
 
 
-def _coded_tinted(
-    v: Any, lo: float, hi: float, colours: np.ndarray, gamma: float, progress: Progress
-) -> tuple:
-    """(values, index, rgb) of the tinted method; rgb = max_z colour_z * u_z**gamma."""
+def _coded_tinted(v: Any, lo: float, scale: float, gamma: float, z_step: float,
+                  colours: np.ndarray, progress: Progress) -> tuple:
+    """(depth_um, brightness, rgb) of the tinted method; rgb = max_z colour_z * u_z**gamma.
+
+    rgb is a (..., rows, cols, 3) view of the channel-planar state: no copy.
+    """
     others = v.shape[1:]
     vals = _initial_values(others, kernel_dtype(v.dtype))
-    idx = np.full(others, -1, np.int32)
+    idx = np.full(others, -1, _index_dtype(v.shape[0]))
     tint = np.zeros(others[:-2] + (3,) + others[-2:], np.float32)
     # colour * u**g == (colour**(1/g) * u)**g, so gamma is applied once at the end
     pre = np.ascontiguousarray(colours ** (1.0 / gamma))
-    scale = 1.0 / (hi - lo)
 
     def fold(block: np.ndarray, z0: int, index: tuple) -> None:
         nb.tinted_update(block, z0, lo, scale, pre, vals[index], idx[index], tint[index])
 
     with _KERNEL_LOCK:
         fold_chunks(v, fold, progress=progress)
-    rgb = np.ascontiguousarray(np.moveaxis(tint, -3, -1))
-    del tint
+        depth = np.empty(others, np.float32)
+        bright = np.empty(others, np.float32)
+        nb.finish_depth_index(_rows(vals), _rows(idx), lo, z_step, _rows(depth))
+        nb.finish_brightness(_rows(vals), lo, scale, gamma, _rows(bright))
     if gamma != 1.0:
-        np.power(rgb, np.float32(gamma), out=rgb)
-    return vals, idx, rgb
+        np.power(tint, np.float32(gamma), out=tint)
+    return depth, bright, np.moveaxis(tint, -3, -1)
 
 
 def depth_coded_projection(
@@ -422,20 +426,13 @@ def depth_coded_projection(
         # background voxels all along the ray would pull every depth to mid-stack
         lo = max(lo, background_floor(v))
         hi = hi if hi > lo else lo + max(1.0, abs(lo)) * 1e-6
+    scale = 1.0 / (hi - lo)
     if method == "tinted":
         colours = slice_colours(lut, n, z_step, d_range)
-        vals, idx, rgb = _coded_tinted(v, lo, hi, colours, gamma, progress)
-        depth = idx.astype(np.float32)
-        del idx
-        depth *= np.float32(z_step)
-        depth[~(vals > lo)] = np.nan
-        brightness = _brightness(vals, lo, hi, gamma)
+        depth, brightness, rgb = _coded_tinted(v, lo, scale, gamma, z_step, colours, progress)
     else:
         reduce = _coded_brightest if method == "brightest" else _coded_weighted
-        vals, depth = reduce(v, lo, hi, z_step, progress)
-        brightness = _brightness(vals, lo, hi, gamma)
-        del vals
-        rgb = _colourize(depth, brightness, d_range, lut)
+        depth, brightness, rgb = reduce(v, lo, scale, gamma, z_step, d_range, lut, progress)
     return DepthCodedProjection(
         rgb=rgb, depth_um=depth, brightness=brightness, depth_range=d_range, lut=lut,
         clim=(lo, hi), method=method, gamma=gamma, z_step=z_step,
@@ -456,11 +453,17 @@ def _blend_table(kdtype: np.dtype, lo: float, hi: float, kappa: float) -> np.nda
 
 def _blend_fold(v: Any, lo: float, hi: float, kappa: float, reverse: bool,
                 colours: Optional[np.ndarray], progress: Progress) -> np.ndarray:
-    """Composited colour (float64) over all chunks; planar RGB if *colours*."""
+    """Composited colour over all chunks: float64 grey, or planar float32 RGB if *colours*.
+
+    The RGB accumulators are float32 (each step adds at most 1 to a sum that
+    stays in [0, 1]: rounding stays near 1e-7 per slice) to keep the extra
+    memory of the colour variant within a quarter of a 16-bit stack.
+    """
     others = v.shape[1:]
     kdtype = kernel_dtype(v.dtype)
     rgb_shape = others[:-2] + (3,) + others[-2:]
-    colour = np.zeros(others if colours is None else rgb_shape, np.float64)
+    colour = (np.zeros(others, np.float64) if colours is None
+              else np.zeros(rgb_shape, np.float32))
     trans = np.ones(others, np.float64)
     table = _blend_table(kdtype, lo, hi, kappa) if kdtype.kind == "u" else None
     scale = 1.0 / (hi - lo)
@@ -579,8 +582,8 @@ def blended_projection(
         colours = slice_colours(lut, n, z_step, _resolve_depth_range(None, n, z_step))
     colour = _blend_fold(v, lo, hi, density * z_step, view == "bottom", colours, progress)
     if colours is not None:
-        colour = np.moveaxis(colour, -3, -1)
-    return np.ascontiguousarray(colour, dtype=np.float32)
+        return np.moveaxis(colour, -3, -1)  # a view of the planar float32 state
+    return colour.astype(np.float32)
 
 
 # --- compile ahead -----------------------------------------------------------
