@@ -59,6 +59,18 @@ def test_brightest_point_ties_uint8():
     assert np.all(P.brightest_point(constant).depth == 0)
 
 
+
+def test_brightest_point_beyond_int16_slice_index():
+    # 40000 slices: the slice index no longer fits the compact int16 state (numpy.argmax)
+    stack = np.zeros((40000, 1, 3), np.uint8)
+    stack[39000, 0, 0] = 9
+    stack[[5, 35000], 0, 1] = 4  # tie across the int16 range: the first wins
+    result = P.brightest_point(stack)
+    np.testing.assert_array_equal(result.depth, np.argmax(stack, axis=0))
+    coded = P.depth_coded_projection(stack, method="tinted", clim=(0, 9), z_step=0.5)
+    np.testing.assert_array_equal(coded.depth_um[0, :2], [19500.0, 2.5])
+    assert np.isnan(coded.depth_um[0, 2])
+
 def test_brightest_point_nan_is_no_signal():
     stack = random_stack(np.float32, shape=(6, 5, 8), seed=3)
     stack[np.random.default_rng(4).random(stack.shape) < 0.3] = np.nan
@@ -324,6 +336,18 @@ def tiny_chunks(monkeypatch):
     monkeypatch.setattr(pc, "CHUNK_BYTES", 3 * 7 * 11 * 2)
     monkeypatch.setattr(pc, "COPY_CHUNK_BYTES", 2 * 7 * 11 * 4)
 
+
+def test_chunked_integer_rays_of_zeros_and_ties(tiny_chunks):
+    # numpy.argmax: all-zero rays give 0, ties across chunk borders keep the first slice
+    stack = random_stack(np.uint8, shape=(10, 7, 11), seed=43, high=3)
+    stack[:, 0, 0] = 0
+    stack[:, 1, 1] = [0, 0, 0, 2, 2, 2, 2, 2, 0, 2]
+    result = P.brightest_point(stack)
+    np.testing.assert_array_equal(result.depth, np.argmax(stack, axis=0))
+    for method in ("brightest", "tinted"):
+        coded = P.depth_coded_projection(stack, method=method, clim=(0, 3))
+        expected = np.where(stack.max(0) > 0, np.argmax(stack, axis=0), np.nan)
+        np.testing.assert_array_equal(coded.depth_um, expected.astype(np.float32))
 
 @pytest.mark.parametrize("dtype", [np.uint16, np.int16, np.float64])
 def test_chunked_equals_one_chunk(dtype, tiny_chunks, monkeypatch):

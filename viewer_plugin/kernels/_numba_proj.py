@@ -262,24 +262,50 @@ def tinted_update(block, z0, lo, scale, colours, vals, idx, tint):
 
 
 @njit(**_OPTS)
-def blend_update_lut(block, table, offset, reverse, colour, trans):
-    """Front-to-back compositing of an integer *block* through a table.
+def blend_update_lut(block, emit, keep, reverse, colour, trans):
+    """Front-to-back compositing of an unsigned-integer *block* through tables.
 
-    ``table[x + offset] = (a * u, 1 - a)`` for every integer value x.
-    *reverse* composites from the last slice of the block to the first.
+    ``emit[x] = a * u`` and ``keep[x] = 1 - a`` for every value x the dtype
+    can hold (no ``exp`` per voxel). *reverse* composites from the last slice
+    of the block to the first. Four slices are composited in registers before
+    the state (float64 colour and transmittance) is written back.
     """
     nz, nr, nc = block.shape
     for r in prange(nr):
         col = colour[r]
         tr = trans[r]
-        for k in range(nz):
+        k = 0
+        while k + 4 <= nz:
+            z = nz - 4 - k if reverse else k
+            ra = block[z + 3, r] if reverse else block[z, r]
+            rb = block[z + 2, r] if reverse else block[z + 1, r]
+            rc = block[z + 1, r] if reverse else block[z + 2, r]
+            rd = block[z, r] if reverse else block[z + 3, r]
+            for c in range(nc):
+                ja = np.uint64(ra[c])
+                jb = np.uint64(rb[c])
+                jc = np.uint64(rc[c])
+                jd = np.uint64(rd[c])
+                t = tr[c]
+                acc = col[c] + t * emit[ja]
+                t *= keep[ja]
+                acc += t * emit[jb]
+                t *= keep[jb]
+                acc += t * emit[jc]
+                t *= keep[jc]
+                acc += t * emit[jd]
+                col[c] = acc
+                tr[c] = t * keep[jd]
+            k += 4
+        while k < nz:
             z = nz - 1 - k if reverse else k
             row = block[z, r]
             for c in range(nc):
-                j = np.int64(row[c]) + offset
+                j = np.uint64(row[c])
                 t = tr[c]
-                col[c] += t * table[j, 0]
-                tr[c] = t * table[j, 1]
+                col[c] += t * emit[j]
+                tr[c] = t * keep[j]
+            k += 1
 
 
 @njit(**_OPTS)
@@ -303,7 +329,7 @@ def blend_update_float(block, lo, scale, kappa, reverse, colour, trans):
 
 
 @njit(**_OPTS)
-def blend_rgb_update_lut(block, z0, table, offset, reverse, colours, colour, trans):
+def blend_rgb_update_lut(block, z0, emit, keep, reverse, colours, colour, trans):
     """As :func:`blend_update_lut`, emitting ``u * colours[z]``; planar RGB state (3, rows, cols)."""
     nz, nr, nc = block.shape
     for r in prange(nr):
@@ -318,13 +344,13 @@ def blend_rgb_update_lut(block, z0, table, offset, reverse, colours, colour, tra
             c1 = colours[z0 + z, 1]
             c2 = colours[z0 + z, 2]
             for c in range(nc):
-                j = np.int64(row[c]) + offset
+                j = np.uint64(row[c])
                 t = tr[c]
-                e = t * table[j, 0]
+                e = t * emit[j]
                 k0[c] += e * c0
                 k1[c] += e * c1
                 k2[c] += e * c2
-                tr[c] = t * table[j, 1]
+                tr[c] = t * keep[j]
 
 
 @njit(**_OPTS)

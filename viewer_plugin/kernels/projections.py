@@ -98,7 +98,8 @@ class DepthCodedProjection:
     Attributes
     ----------
     rgb : ndarray of float32, shape (..., 3)
-        Colour = depth through the colour table, scaled by brightness; in [0, 1].
+        Colour = depth through the colour table, scaled by brightness; in
+        [0, 1]. C-ordered, except for "tinted" (a view of planar storage).
     depth_um : ndarray of float32
         Depth of each pixel in µm from the first slice; NaN where nothing
         exceeds ``clim[0]``.
@@ -378,7 +379,9 @@ def depth_coded_projection(
         ``rgb`` float32 (..., 3) in [0, 1]; ``depth_um`` float32 (NaN where
         nothing exceeds lo); ``brightness`` float32 in [0, 1];
         ``depth_range``; ``lut`` ((N, 3) float64); ``clim``; ``method``;
-        ``gamma``; ``z_step``.
+        ``gamma``; ``z_step``. For "tinted", ``rgb`` is a strided view of
+        channel-planar storage (saves a copy of the image); call
+        :func:`numpy.ascontiguousarray` if a consumer needs C order.
 
     Raises
     ------
@@ -441,14 +444,11 @@ def depth_coded_projection(
 
 # --- blended (emission-absorption) projection ------------------------------------
 
-def _blend_table(kdtype: np.dtype, lo: float, hi: float, kappa: float) -> np.ndarray:
-    """Per-integer-value ``(a * u, 1 - a)`` for uint8/uint16 input (float64)."""
+def _blend_tables(kdtype: np.dtype, lo: float, hi: float, kappa: float) -> tuple:
+    """Per-integer-value ``a * u`` and ``1 - a`` for uint8/uint16 input (float64)."""
     x = np.arange(2 ** (8 * kdtype.itemsize), dtype=np.float64)
     u = np.clip((x - lo) / (hi - lo), 0.0, 1.0)
-    table = np.empty((x.size, 2), np.float64)
-    table[:, 0] = -np.expm1(-kappa * u) * u
-    table[:, 1] = np.exp(-kappa * u)
-    return table
+    return -np.expm1(-kappa * u) * u, np.exp(-kappa * u)
 
 
 def _blend_fold(v: Any, lo: float, hi: float, kappa: float, reverse: bool,
@@ -465,17 +465,17 @@ def _blend_fold(v: Any, lo: float, hi: float, kappa: float, reverse: bool,
     colour = (np.zeros(others, np.float64) if colours is None
               else np.zeros(rgb_shape, np.float32))
     trans = np.ones(others, np.float64)
-    table = _blend_table(kdtype, lo, hi, kappa) if kdtype.kind == "u" else None
+    tables = _blend_tables(kdtype, lo, hi, kappa) if kdtype.kind == "u" else None
     scale = 1.0 / (hi - lo)
 
     def fold(block: np.ndarray, z0: int, index: tuple) -> None:
         c, t = colour[index], trans[index]
-        if colours is None and table is not None:
-            nb.blend_update_lut(block, table, 0, reverse, c, t)
+        if colours is None and tables is not None:
+            nb.blend_update_lut(block, *tables, reverse, c, t)
         elif colours is None:
             nb.blend_update_float(block, lo, scale, kappa, reverse, c, t)
-        elif table is not None:
-            nb.blend_rgb_update_lut(block, z0, table, 0, reverse, colours, c, t)
+        elif tables is not None:
+            nb.blend_rgb_update_lut(block, z0, *tables, reverse, colours, c, t)
         else:
             nb.blend_rgb_update_float(block, z0, lo, scale, kappa, reverse, colours, c, t)
 
@@ -537,7 +537,8 @@ def blended_projection(
     -------
     ndarray of float32
         The composited image in [0, 1], the stack's shape without *axis*;
-        with *cmap*, an extra last axis of 3 (RGB).
+        with *cmap*, an extra last axis of 3 (RGB), a strided view of
+        channel-planar storage (no copy).
 
     Raises
     ------
