@@ -4,7 +4,7 @@
 
 Writes docs/images/projection_depth_colour.png (the depth colour widget and its RGB result),
 projection_brightest_point.png (maximum and depth map in µm with napari's colour bar),
-projection_blended.png (blended top view with the two side views below it) and
+projection_blended.png (depth-coloured blended top view, the two side views below it) and
 projection_figure.png (the figure "Export figure…" saves for a paper). Open them and look at
 them before committing.
 """
@@ -82,6 +82,7 @@ def main() -> int:
 
     blended = BlendedWidget(viewer)
     blended.side_views.value = True
+    blended.colour.value = "viridis"  # each slice emits its depth's colour, side views too
     dock(viewer, blended, "Blended projection")
     wait(app, blended.compute(start_thread=False), blended)
     only_visible(viewer, f"{name} blended (top)", f"{name} blended side (along y)",

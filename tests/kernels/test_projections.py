@@ -215,6 +215,17 @@ def test_tinted_against_numpy_formula(gamma):
     assert np.all(result.rgb <= result.brightness[..., None] + 1e-6)
 
 
+
+def test_depth_colours_match_matplotlib_and_validate():
+    # matplotlib documentation: Colormap(t) for t = depth / deepest depth
+    colours = P.depth_colours(8, z_step=0.4, cmap="plasma")
+    np.testing.assert_allclose(colours, matplotlib.colormaps["plasma"](np.arange(8) / 7)[:, :3])
+    assert colours.shape == (8, 3) and colours.dtype == np.float64
+    with pytest.raises(ParameterError, match="n_slices"):
+        P.depth_colours(0)
+    with pytest.raises(ParameterError, match="depth_range"):
+        P.depth_colours(4, depth_range=(3.0, 1.0))
+
 def test_tinted_keeps_crossing_fibres():
     # two fibres crossing at different depths: both colours survive at the crossing
     stack = np.zeros((10, 9, 9), np.uint16)

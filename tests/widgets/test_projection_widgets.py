@@ -209,6 +209,37 @@ def test_blended_widget_side_views_geometry(make_napari_viewer, qtbot):
     np.testing.assert_array_equal(layer.data, before)
 
 
+
+def test_blended_widget_colour_side_views(make_napari_viewer, qtbot):
+    """Side views of the depth-coloured rendering: grey side view x the colour of each row's depth.
+
+    Reference: the kernel's own grey rendering along y and the matplotlib colour table
+    (matplotlib documentation, Colormap.__call__).
+    """
+    import matplotlib
+
+    from viewer_plugin.kernels.projections import blended_projection
+    from viewer_plugin.widgets.projection import BlendedWidget
+
+    viewer = make_napari_viewer(show=True)
+    data = _stack()
+    before = data.copy()
+    layer = _add_stack(viewer, data)
+    widget = BlendedWidget(viewer)
+    widget.side_views.value = True
+    widget.colour.value = "magma"
+    _run(qtbot, widget)
+    top = viewer.layers["cells blended (top)"]
+    along_y = viewer.layers["cells blended side (along y)"]
+    assert top.rgb and along_y.rgb and along_y.data.shape == (12, 48, 3)
+    clim = tuple(float(v) for v in layer.contrast_limits)
+    grey = blended_projection(data, z_step=0.5, density=widget._options(layer)["density"],
+                              clim=clim, axis=1)  # (z, x): rows are depths
+    colours = matplotlib.colormaps["magma"](np.arange(12) / 11)[:, :3]
+    np.testing.assert_allclose(along_y.data, grey[..., None] * colours[:, None, :],
+                               rtol=1e-5, atol=1e-6)
+    np.testing.assert_array_equal(layer.data, before)
+
 def test_cancel_stops_and_adds_nothing(make_napari_viewer, qtbot):
     from viewer_plugin.widgets.projection import BlendedWidget
 

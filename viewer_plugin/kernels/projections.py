@@ -38,7 +38,14 @@ from ._proj_combine import (
     resolve_lut,
     slice_colours,
 )
-from ._validate import check_choice, check_interval, check_number, check_stack, depth_first
+from ._validate import (
+    check_choice,
+    check_int,
+    check_interval,
+    check_number,
+    check_stack,
+    depth_first,
+)
 from .legend import DepthLegend, depth_legend
 
 __all__ = [
@@ -51,6 +58,7 @@ __all__ = [
     "CLIM_PERCENTILES",
     "brightest_point",
     "depth_coded_projection",
+    "depth_colours",
     "blended_projection",
     "depth_legend",
     "warm_up",
@@ -440,6 +448,61 @@ def depth_coded_projection(
         rgb=rgb, depth_um=depth, brightness=brightness, depth_range=d_range, lut=lut,
         clim=(lo, hi), method=method, gamma=gamma, z_step=z_step,
     )
+
+
+def depth_colours(
+    n_slices: int,
+    *,
+    z_step: float = 1.0,
+    cmap: Any = "viridis",
+    depth_range: Optional[tuple[float, float]] = None,
+) -> np.ndarray:
+    """Colour of every slice, as the depth-coded projections use it.
+
+    Slice ``z`` sits at depth ``z * z_step`` µm; its colour is the colour
+    table's entry for ``(depth - d0) / (d1 - d0)`` clipped to [0, 1] (entry
+    ``floor(t * N)``, matplotlib's rule). These are the colours of
+    ``depth_coded_projection(method="tinted")`` (before gamma) and of
+    ``blended_projection(cmap=...)``; a side view of a blended projection,
+    whose rays run at one depth, is its grey image times these colours.
+
+    Parameters
+    ----------
+    n_slices : int
+        Number of slices (>= 1).
+    z_step : float, optional
+        Slice spacing in µm (> 0).
+    cmap : str, matplotlib Colormap or array of shape (N, 3), optional
+        Colour table (default "viridis").
+    depth_range : (float, float), optional
+        (d0, d1) in µm; default the first to the last slice.
+
+    Returns
+    -------
+    ndarray of float64, shape (n_slices, 3)
+        RGB in [0, 1].
+
+    Raises
+    ------
+    ParameterError
+        For n_slices < 1, z_step <= 0, an unknown colour table or d1 <= d0.
+
+    References
+    ----------
+    .. [1] matplotlib documentation, ``Colormap.__call__`` (lookup of a
+       position in [0, 1]).
+
+    Examples
+    --------
+    >>> depth_colours(3, z_step=2.0, cmap=np.array([[1.0, 0, 0], [0, 0, 1.0]]))
+    array([[1., 0., 0.],
+           [0., 0., 1.],
+           [0., 0., 1.]])
+    """
+    n = check_int(n_slices, name="n_slices", low=1)
+    z_step = check_number(z_step, name="z_step", low=0.0, low_open=True)
+    lut = resolve_lut(cmap)
+    return slice_colours(lut, n, z_step, _resolve_depth_range(depth_range, n, z_step))
 
 
 # --- blended (emission-absorption) projection ------------------------------------

@@ -105,7 +105,7 @@ class BlendedWidget(ProjectionWidget):
                                       tooltip="Otherwise the layer's contrast limits are used")
         self.colour = ComboBox(label="Colour", choices=[("grey", None)] + [
             (f"depth ({name})", name) for name in DEPTH_MAP_COLOURS[:5]], value=None,
-            tooltip="Grey, or each slice emits the colour of its depth (top view only)")
+            tooltip="Grey, or each slice emits the colour of its depth (top and side views)")
         self.side_views = CheckBox(text="Side views along y and along x", value=False)
         self.note = Label(value="A rendering for looking, not for measuring: "
                                 "blended brightness is not an intensity.")
@@ -131,25 +131,36 @@ class BlendedWidget(ProjectionWidget):
 
     def _job(self, data: Any, axis: int, z_step: float, options: dict[str, Any],
              progress: Callable[[int, int], None]) -> Any:
-        from ..kernels.projections import blended_projection
+        from ..kernels._proj_combine import estimate_clim
+        from ..kernels._validate import depth_first
+        from ..kernels.projections import CLIM_PERCENTILES, blended_projection, depth_colours
 
         passes = 3 if options["side_views"] else 1
 
         def part(k: int) -> Callable[[int, int], None]:
             return lambda done, total: progress(k * total + done, passes * total)
 
-        common = {"density": options["density"], "clim": options["clim"]}
+        clim = options["clim"]
+        if clim is None and options["side_views"]:  # one contrast for all three views
+            clim = estimate_clim(depth_first(data, axis), CLIM_PERCENTILES)
+        common = {"density": options["density"], "clim": clim}
         top = blended_projection(data, z_step=z_step, view=options["view"], axis=axis,
                                  cmap=options["cmap"], progress=part(0), **common)
         sides = []
         if options["side_views"]:
             others = [i for i in range(data.ndim) if i != axis][-2:]
+            colours = None
+            if options["cmap"] is not None:
+                # a side-view ray runs at one depth: its colour is that depth's colour
+                colours = depth_colours(data.shape[axis], z_step=z_step, cmap=options["cmap"])
+                colours = colours.astype(np.float32)[:, None, :]
             for k, side_axis in enumerate(others, start=1):
                 step = options["pixel"][k - 1]
                 view = blended_projection(data, z_step=step, view="top", axis=side_axis,
                                           progress=part(k), **common)
                 depth_pos = axis if axis < side_axis else axis - 1
-                sides.append(np.moveaxis(np.asarray(view), depth_pos, -2))
+                view = np.moveaxis(np.asarray(view), depth_pos, -2)
+                sides.append(view if colours is None else view[..., None] * colours)
         return np.asarray(top), sides
 
     def _show(self, layer: Any, axis: int, z_step: float, options: dict[str, Any], result: Any) -> None:
@@ -167,14 +178,24 @@ class BlendedWidget(ProjectionWidget):
         names = [self.top_layer.name]
         self.side_layers = []
         if sides:
+            # one display scale for the three views, so brightness compares across them
+            high = max([float(np.nanmax(v)) for v in (top, *sides)] + [1e-6])
+            self.top_layer.contrast_limits = (0.0, high)
+            display: dict[str, Any] = {"contrast_limits": (0.0, high)}
+            display.update({"rgb": True} if top.ndim == layer.ndim else {"colormap": "gray"})
             for which, view in zip(("y", "x"), sides):
-                self.side_layers.append(self._add_side(layer, axis, z_step, which, view))
+                self.side_layers.append(self._add_side(layer, axis, z_step, which, view, display))
                 names.append(self.side_layers[-1].name)
         self.status.value = ("Added " + ", ".join(f"'{n}'" for n in names)
                              + f" (density {options['density']:.3g}/\u00b5m)")
 
-    def _add_side(self, layer: Any, axis: int, z_step: float, along: str, view: np.ndarray) -> Any:
-        """Add a side view below the top view; depth vertical, scale z-step × pixel size."""
+    def _add_side(self, layer: Any, axis: int, z_step: float, along: str, view: np.ndarray,
+                  display: dict[str, Any]) -> Any:
+        """Add a side view below the top view; depth vertical, scale z-step × pixel size.
+
+        *view* is grey (rows = depth) or RGB with a last axis of 3; *display*
+        holds the napari display options (``rgb`` or colormap and contrast).
+        """
         others = [i for i in range(layer.ndim) if i != axis]
         y_axis, x_axis = others[-2], others[-1]
         lead = others[:-2]
@@ -196,4 +217,4 @@ class BlendedWidget(ProjectionWidget):
         if lead:  # keep time/channel axes lined up with the source (see span_depth)
             view, geometry = span_depth(view, layer, len(lead), geometry)
         return self.viewer.add_image(view, name=f"{layer.name} blended side (along {along})",
-                                     colormap="gray", **geometry)
+                                     **display, **geometry)
