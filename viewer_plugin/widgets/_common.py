@@ -5,7 +5,7 @@ from __future__ import annotations
 from typing import TYPE_CHECKING, Any, Sequence
 
 import numpy as np
-from magicgui.widgets import Container, Label
+from magicgui.widgets import Container, Label, TextEdit
 
 if TYPE_CHECKING:  # pragma: no cover
     import napari
@@ -36,6 +36,31 @@ def disconnect_layer_events(viewer: "napari.Viewer", callback: Any) -> None:
         except (RuntimeError, TypeError, ValueError):
             pass
 
+
+
+def wrapped(label: Label) -> Label:
+    """*label* with word wrap on (for short fixed notes)."""
+    label.native.setWordWrap(True)
+    return label
+
+
+def result_text(*, lines: int = 5) -> TextEdit:
+    """A read-only, selectable text box for a result summary of several sentences.
+
+    A word-wrapped label in a dock gets too little height once its text is
+    long (Qt does not pass the wrapped height up through the dock's scroll
+    area), so long results were cut off; this box keeps at least *lines*
+    lines and scrolls beyond them, and its text can be copied.
+    """
+    box = TextEdit(value="")
+    native = box.native
+    native.setReadOnly(True)
+    native.setFrameStyle(0)
+    native.viewport().setAutoFillBackground(False)
+    metrics = native.fontMetrics()
+    margins = native.contentsMargins()
+    native.setMinimumHeight(lines * metrics.lineSpacing() + margins.top() + margins.bottom() + 8)
+    return box
 
 def layer_step(layer: Any, axis: int) -> float:
     """The layer's scale along *axis* (um per voxel when the file said so)."""

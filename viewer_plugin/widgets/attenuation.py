@@ -23,6 +23,7 @@ from ._common import (
     disconnect_layer_events,
     image_layer_choices,
     leading_axis_labels,
+    result_text,
     same_geometry,
 )
 from ._runner import BackgroundTask, TaskWidgetMixin
@@ -143,9 +144,9 @@ class AttenuationWidget(TaskWidgetMixin, Container):
         self.log_scale = CheckBox(text="log scale", value=True)
         self.result_label = Label(value="Pick a z-stack and press Fit.")
         self.truth_label = Label(value="")
-        self.notes_label = Label(value="")
+        self.notes_label = result_text(lines=3)
         self._caution = Label(value=CAUTION_SHORT)
-        for label in (self.result_label, self.truth_label, self.notes_label, self._caution):
+        for label in (self.result_label, self.truth_label, self._caution):
             label.native.setWordWrap(True)
         self._widgets = [self.layer_combo, self.axis_combo, self.z_step, self.model, self.max_gain,
                          self.mask_combo, self.fit_button, self.correct_button, self.cancel_button,

@@ -18,7 +18,9 @@ from ._common import (
     disconnect_layer_events,
     image_layer_choices,
     leading_axis_labels,
+    result_text,
     same_geometry,
+    wrapped,
 )
 from ._runner import BackgroundTask, TaskWidgetMixin
 
@@ -63,11 +65,6 @@ def truth_of(layer: Any) -> dict[str, Any]:
     return truth if isinstance(truth, dict) else {}
 
 
-def _wrap(label: Label) -> Label:
-    label.native.setWordWrap(True)
-    return label
-
-
 class BleachingWidget(TaskWidgetMixin, Container):
     """Check a time series (or one stack) for photobleaching; correct it; or separate it.
 
@@ -96,22 +93,22 @@ class BleachingWidget(TaskWidgetMixin, Container):
                                   choices=[("time (time points)", "time"),
                                            ("z (slices of one stack)", "depth")])
         self.interval = FloatSpinBox(label="Interval (s)", value=1.0, min=1e-6, max=1e7, step=1.0)
-        self.interval_hint = _wrap(Label(value=""))
+        self.interval_hint = wrapped(Label(value=""))
         self.tolerance = FloatSpinBox(label="Tolerance (% loss)", value=10.0, min=0.1, max=99.0,
                                       step=1.0, tooltip=TOLERANCE_NOTE)
-        self.tolerance_note = _wrap(Label(value=TOLERANCE_NOTE))
+        self.tolerance_note = wrapped(Label(value=TOLERANCE_NOTE))
         self.method = ComboBox(label="Correction", choices=[
             ("divide by the fitted model", "fit"), ("ratio to the first frame", "ratio"),
             ("match the first frame's histogram", "histogram")], value="fit")
         self.forward_combo = ComboBox(label="Forward pass", choices=self._layer_choices)
         self.reverse_combo = ComboBox(label="Reverse pass", choices=self._layer_choices)
-        self.two_pass_help = _wrap(Label(value=TWO_PASS_HELP))
+        self.two_pass_help = wrapped(Label(value=TWO_PASS_HELP))
         self.check_button = PushButton(text="Check")
         self.correct_button = PushButton(text="Correct (new layer)")
         self.cancel_button = PushButton(text="Cancel", enabled=False)
-        self.verdict = _wrap(Label(value=""))
-        self.caveat = _wrap(Label(value=""))
-        self.caution = _wrap(Label(value=CAUTION))
+        self.verdict = result_text(lines=5)
+        self.caveat = result_text(lines=4)
+        self.caution = wrapped(Label(value=CAUTION))
         self.extend([self.mode, self.layer_combo, self.axis_kind, self.interval,
                      self.interval_hint, self.tolerance,
                      self.tolerance_note, self.method, self.forward_combo, self.reverse_combo,
@@ -130,6 +127,7 @@ class BleachingWidget(TaskWidgetMixin, Container):
         self.figure = Figure(figsize=(5.0, 3.4), dpi=90, layout="constrained")
         self.canvas = FigureCanvasQTAgg(self.figure)
         self.canvas.setMinimumHeight(260)
+        self.canvas.setMinimumWidth(560)  # two panels side by side stay readable
         self.native.layout().addWidget(self.canvas)
 
     def _connect(self) -> None:
