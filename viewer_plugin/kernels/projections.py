@@ -271,9 +271,9 @@ def _coded_brightest(v: Any, lo: float, scale: float, gamma: float, z_step: floa
     return (depth, *_finish_colour(vals, depth, lo, scale, gamma, d_range, lut))
 
 
-def _coded_weighted(v: Any, lo: float, scale: float, gamma: float, z_step: float,
-                    d_range: tuple, lut: np.ndarray, progress: Progress) -> tuple:
-    """(depth_um, brightness, rgb) of the "weighted" method."""
+def _weighted_depth(v: Any, lo: float, scale: float, z_step: float,
+                    progress: Progress) -> tuple[np.ndarray, np.ndarray]:
+    """(maximum, intensity-weighted mean depth in µm); the float64 sums die on return."""
     others = v.shape[1:]
     vals = _initial_values(others, kernel_dtype(v.dtype))
     sum_u = np.zeros(others, np.float64)
@@ -286,7 +286,14 @@ def _coded_weighted(v: Any, lo: float, scale: float, gamma: float, z_step: float
         fold_chunks(v, fold, progress=progress)
         depth = np.empty(others, np.float32)
         nb.finish_depth_sums(_rows(sum_u), _rows(sum_uz), z_step, _rows(depth))
-    del sum_u, sum_uz  # before the colour image is allocated: lower peak memory
+    return vals, depth
+
+
+def _coded_weighted(v: Any, lo: float, scale: float, gamma: float, z_step: float,
+                    d_range: tuple, lut: np.ndarray, progress: Progress) -> tuple:
+    """(depth_um, brightness, rgb) of the "weighted" method."""
+    # the sums are freed before the colour image is allocated: lower peak memory
+    vals, depth = _weighted_depth(v, lo, scale, z_step, progress)
     return (depth, *_finish_colour(vals, depth, lo, scale, gamma, d_range, lut))
 
 
@@ -655,7 +662,7 @@ def blended_projection(
 def warm_up() -> None:
     """Compile (or load from numba's disk cache) the kernels for common dtypes.
 
-    Runs every projection on tiny uint8, uint16 and float32 stacks. Takes
+    Runs every projection on tiny uint16, uint8 and float32 stacks. Takes
     tens of seconds the very first time on a machine and well under a second
     once cached; widgets call it in a background thread at start-up.
 
@@ -677,7 +684,7 @@ def warm_up() -> None:
     --------
     >>> warm_up()
     """
-    for dtype in (np.uint8, np.uint16, np.float32):
+    for dtype in (np.uint16, np.uint8, np.float32):  # the commonest microscopy dtype first
         tiny = np.zeros((3, 4, 8), dtype)
         tiny[1, 1, 1] = 1
         brightest_point(tiny)

@@ -8,16 +8,13 @@ the GUI thread through :class:`~viewer_plugin.widgets._runner.BackgroundTask`.
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING, Any, Callable
+from typing import Any, Callable
 
 import numpy as np
 from magicgui.widgets import CheckBox, ComboBox, FloatSpinBox, Label
 
 from ._proj_base import ProjectionWidget, span_depth
 from ._proj_colour import DepthColourWidget
-
-if TYPE_CHECKING:  # pragma: no cover
-    import napari
 
 __all__ = ["BlendedWidget", "BrightestPointWidget", "DepthColourWidget"]
 
