@@ -269,6 +269,25 @@ def test_export_figure_from_widget(make_napari_viewer, qtbot, tmp_path):
     assert widget.export_figure(tmp_path / "fig.png") is None  # refuses to overwrite
 
 
+
+def test_export_figure_in_background(make_napari_viewer, qtbot, tmp_path, errors):
+    """The button's export runs in a worker thread; the button is off until it is done."""
+    from viewer_plugin.widgets.projection import DepthColourWidget
+
+    viewer = make_napari_viewer(show=True)
+    _add_stack(viewer)
+    widget = DepthColourWidget(viewer)
+    _run(qtbot, widget)
+    # the worker is already running when export_figure returns, so wait on what its
+    # handlers (connected before the start) change, not on its signals
+    worker = widget.export_figure(tmp_path / "fig.pdf", background=True)
+    assert worker is not None and not widget.export_button.enabled
+    qtbot.waitUntil(lambda: widget.export_button.enabled, timeout=WAIT_MS)
+    assert (tmp_path / "fig.pdf").exists() and widget.status.value.startswith("Exported")
+    widget.export_figure(tmp_path / "fig.pdf", background=True)  # exists: refused
+    qtbot.waitUntil(lambda: bool(errors), timeout=WAIT_MS)
+    assert "fig.pdf" in errors[-1] and widget.status.value.startswith("Export failed")
+
 def test_layer_list_refresh(make_napari_viewer):
     from viewer_plugin.widgets.projection import BrightestPointWidget
 

@@ -296,11 +296,18 @@ class DepthColourWidget(ProjectionWidget):
             path += {"T": ".tif", "P": ".pdf"}.get(chosen[:1], ".png")
         if path:
             # the dialog already asked whether to replace an existing figure
-            self.export_figure(path, overwrite=Path(path).exists())
+            self.export_figure(path, overwrite=Path(path).exists(), background=True)
 
-    def export_figure(self, path: str | Path, *, overwrite: bool = False, title: str | None = None) -> Any:
-        """Save the last full result as a figure with colour bar, scale bar and sidecars."""
-        from napari.utils.notifications import show_error, show_info
+    def export_figure(self, path: str | Path, *, overwrite: bool = False, title: str | None = None,
+                      background: bool = False) -> Any:
+        """Save the last full result as a figure with colour bar, scale bar and sidecars.
+
+        Returns the written files, or None after an error (shown as a
+        notification). With *background* the figure is drawn and written in a
+        worker thread (matplotlib Agg, no pyplot) and the napari worker is
+        returned instead; the button stays disabled until it is done.
+        """
+        from napari.utils.notifications import show_error
 
         from ..figures import export_depth_figure
 
@@ -308,19 +315,45 @@ class DepthColourWidget(ProjectionWidget):
             show_error(f"{self.title}: compute the full result before exporting a figure")
             return None
         info = self.result_info
-        figure_result = self._current_plane(self.result)
+        kwargs = {"pixel_size_um": tuple(info["voxel_size_um"][1:]), "title": title,
+                  "source_name": info.get("source_file") or info["source_layer"],
+                  "parameters": info, "overwrite": overwrite}
+        figure_result = self._current_plane(self.result)  # reads the viewer: GUI thread
+        if background:
+            from napari.qt.threading import create_worker
+
+            # errors go to _export_failed; without _ignore_errors napari re-raises them
+            worker = create_worker(export_depth_figure, figure_result, path, **kwargs,
+                                   _start_thread=False, _ignore_errors=True)
+            worker.returned.connect(self._exported)
+            worker.errored.connect(self._export_failed)
+            worker.finished.connect(lambda: setattr(self.export_button, "enabled",
+                                                    self.result is not None))
+            self.export_button.enabled = False
+            self.status.value = f"Exporting {Path(path).name}\u2026"
+            worker.start()
+            return worker
         try:
-            files = export_depth_figure(
-                figure_result, path, pixel_size_um=tuple(info["voxel_size_um"][1:]),
-                title=title, source_name=info.get("source_file") or info["source_layer"],
-                parameters=info, overwrite=overwrite)
+            files = export_depth_figure(figure_result, path, **kwargs)
         except (ValueError, OSError) as exc:
-            show_error(f"{self.title}: {exc}")
+            self._export_failed(exc)
             return None
+        self._exported(files)
+        return files
+
+    def _exported(self, files: Any) -> None:
+        from napari.utils.notifications import show_info
+
         show_info(f"{self.title}: saved {files.figure.name} with {files.sidecar.name} and "
                   f"{files.methods.name}")
         self.status.value = f"Exported {files.figure}"
-        return files
+
+    def _export_failed(self, exc: BaseException) -> None:
+        from napari.utils.notifications import show_error
+
+        text = str(exc) if isinstance(exc, (ValueError, OSError)) else f"{type(exc).__name__}: {exc}"
+        show_error(f"{self.title}: {text}")
+        self.status.value = f"Export failed: {text}"
 
     def _current_plane(self, result: Any) -> Any:
         """The 2-D plane of a result with extra axes (time, channel) shown in the viewer now."""
