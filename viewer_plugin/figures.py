@@ -444,7 +444,8 @@ def export_depth_figure(
     """
     from matplotlib import rc_context
 
-    from .commands._common import atomic_write_bytes, write_json
+    from .commands._common import write_json
+    from .io._atomic import atomic_write
 
     path, sidecar, methods, fmt = _check_targets(Path(path), overwrite=overwrite)
     params = dict(parameters or {})
@@ -455,12 +456,12 @@ def export_depth_figure(
             result, pixel_size_um=pixel_size_um, scale_bar_um=scale_bar_um, title=title, dpi=dpi)
         rgb = _figure_rgb(result)
         text = methods_sentence(params, legend_range=parts.depth_range)
-        atomic_write_bytes(path, lambda tmp: fig.savefig(tmp, format=fmt, dpi=fig.dpi,
+        atomic_write(path, lambda tmp: fig.savefig(tmp, format=fmt, dpi=fig.dpi,
                                                          facecolor="white"))
     record = _sidecar_record(path, params, parts, source_name=source_name, pixel=pixel,
                              scale_bar_um=scale_bar_um, shape=rgb.shape[:2], methods=text)
     write_json(sidecar, record)
-    atomic_write_bytes(methods, lambda tmp: tmp.write_text(text, encoding="utf-8"))
+    atomic_write(methods, lambda tmp: tmp.write_text(text, encoding="utf-8"))
     return FigureFiles(path, sidecar, methods, text)
 
 

@@ -8,7 +8,7 @@ import os
 import sys
 import time
 from pathlib import Path
-from typing import Any, Callable
+from typing import Any
 
 import numpy as np
 
@@ -55,11 +55,6 @@ def check_outputs(args: Any, options: tuple[str, ...] = ("output", "report", "pl
     return out
 
 
-def atomic_write_bytes(path: Path, write: Callable[[Path], None]) -> Path:
-    """Write through *write(tmp)* atomically (see :func:`viewer_plugin.io._atomic.atomic_write`)."""
-    return atomic_write(path, write)
-
-
 def _json_default(value: Any) -> Any:
     if isinstance(value, np.ndarray):
         return value.tolist()
@@ -88,7 +83,7 @@ def _finite(value: Any) -> Any:
 def write_json(path: Path, payload: dict[str, Any]) -> Path:
     """Write *payload* as indented JSON atomically (inf/NaN become null)."""
     text = json.dumps(_finite(payload), indent=2, default=_json_default, allow_nan=False)
-    return atomic_write_bytes(Path(path), lambda tmp: tmp.write_text(text + "\n", encoding="utf-8"))
+    return atomic_write(Path(path), lambda tmp: tmp.write_text(text + "\n", encoding="utf-8"))
 
 
 class TerminalProgress:

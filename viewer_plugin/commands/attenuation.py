@@ -20,10 +20,10 @@ from typing import Any
 import numpy as np
 
 from .. import __version__
+from ..io._atomic import atomic_write
 from ._common import (
     CommandError,
     TerminalProgress,
-    atomic_write_bytes,
     check_output_path,
     check_outputs,
     write_json,
@@ -237,7 +237,7 @@ def _write_plots(path: Path, stack: Any, results: list[dict[str, Any]], max_gain
             target = path.with_name(f"{path.stem}_c{result['channel']}{path.suffix}")
             title += f", channel {result['channel']}"
         fig = attenuation_figure(result["fit"], max_gain=max_gain, truth=truth, title=title)
-        atomic_write_bytes(target, lambda tmp, fig=fig: fig.savefig(tmp, format="png", dpi=120))
+        atomic_write(target, lambda tmp, fig=fig: fig.savefig(tmp, format="png", dpi=120))
 
 
 def _print_summary(results: list[dict[str, Any]], stack: Any, outputs: dict[str, Path | None]) -> None:

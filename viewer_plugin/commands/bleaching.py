@@ -19,12 +19,12 @@ from pathlib import Path
 from typing import Any
 
 from .. import __version__
+from ..io._atomic import atomic_write
 from ._common import (
     EXIT_OK,
     EXIT_OVER_TOLERANCE,
     CommandError,
     TerminalProgress,
-    atomic_write_bytes,
     check_outputs,
     write_json,
 )
@@ -236,7 +236,7 @@ def _write_plot(path: Path, report: Any, truth: dict[str, Any] | None) -> None:
 
     rate = truth.get("bleach_rate_per_frame") if truth and report.axis_kind == "time" else None
     fig = bleaching_figure(report, truth_rate=rate)
-    atomic_write_bytes(path, lambda tmp: fig.savefig(tmp, format="png", dpi=120))
+    atomic_write(path, lambda tmp: fig.savefig(tmp, format="png", dpi=120))
 
 
 def _print_written(outputs: dict[str, Path | None]) -> None:
@@ -287,7 +287,7 @@ def _run_two_pass(args: argparse.Namespace, stack: Any, tolerance: float,
     truth = _truth(stack)
     if outputs["plot"] is not None:
         fig = two_pass_figure(result, truth=truth)
-        atomic_write_bytes(outputs["plot"], lambda tmp: fig.savefig(tmp, format="png", dpi=120))
+        atomic_write(outputs["plot"], lambda tmp: fig.savefig(tmp, format="png", dpi=120))
     if outputs["report"] is not None:
         payload = _payload(args, tolerance, {"axis": "z", "z_step_um": z_step,
                                              "z_step_from": "--interval" if args.interval else "file"})
