@@ -226,6 +226,16 @@ def test_depth_colours_match_matplotlib_and_validate():
     with pytest.raises(ParameterError, match="depth_range"):
         P.depth_colours(4, depth_range=(3.0, 1.0))
 
+
+def test_display_limits_are_the_projections_defaults():
+    stack = random_stack(np.uint16, shape=(9, 20, 24), seed=59)
+    limits = P.display_limits(np.moveaxis(stack, 0, 2), axis=2)
+    assert limits == P.depth_coded_projection(stack).clim
+    np.testing.assert_array_equal(P.blended_projection(stack),
+                                  P.blended_projection(stack, clim=limits))
+    with pytest.raises(ParameterError, match="stack"):
+        P.display_limits(np.zeros((4, 4)))
+
 def test_tinted_keeps_crossing_fibres():
     # two fibres crossing at different depths: both colours survive at the crossing
     stack = np.zeros((10, 9, 9), np.uint16)

@@ -128,9 +128,7 @@ class BlendedWidget(ProjectionWidget):
 
     def _job(self, data: Any, axis: int, z_step: float, options: dict[str, Any],
              progress: Callable[[int, int], None]) -> Any:
-        from ..kernels._proj_combine import estimate_clim
-        from ..kernels._validate import depth_first
-        from ..kernels.projections import CLIM_PERCENTILES, blended_projection, depth_colours
+        from ..kernels.projections import blended_projection, depth_colours, display_limits
 
         passes = 3 if options["side_views"] else 1
 
@@ -139,7 +137,7 @@ class BlendedWidget(ProjectionWidget):
 
         clim = options["clim"]
         if clim is None and options["side_views"]:  # one contrast for all three views
-            clim = estimate_clim(depth_first(data, axis), CLIM_PERCENTILES)
+            clim = display_limits(data, axis=axis)
         common = {"density": options["density"], "clim": clim}
         top = blended_projection(data, z_step=z_step, view=options["view"], axis=axis,
                                  cmap=options["cmap"], progress=part(0), **common)
