@@ -26,10 +26,6 @@ def slab_file(tmp_path_factory):
     return path, demo
 
 
-
-
-
-
 def run_cli(*args: str):
     """`stackdepth attenuation ARGS` through the real console entry point."""
     return _run("attenuation", *args)

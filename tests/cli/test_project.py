@@ -16,10 +16,6 @@ from tests.cli._console import assert_one_line_error, run_cli
 from viewer_plugin.io import read_stack, write_ome_tiff
 
 
-
-
-
-
 def _bars(shape=(10, 32, 40), seed=0):
     """uint16 stack: one bright bar per slice at its own row, on Poisson background."""
     rng = np.random.default_rng(seed)

@@ -184,7 +184,8 @@ def test_brightest_point_depth_axis_from_labels(make_napari_viewer, qtbot):
         assert top.get_value((30.0, z_um, 0.5 * 20, 0.5 * 20), world=True) == data[1, :, 20, 20].max()
 
 
-def test_blended_widget_side_views_geometry(make_napari_viewer, qtbot):
+def _blended_with_side_views(make_napari_viewer, qtbot, colour=None):
+    """Run the blended widget with side views on the test stack; returns its pieces."""
     from viewer_plugin.widgets.projection import BlendedWidget
 
     viewer = make_napari_viewer(show=True)
@@ -193,7 +194,13 @@ def test_blended_widget_side_views_geometry(make_napari_viewer, qtbot):
     layer = _add_stack(viewer, data)
     widget = BlendedWidget(viewer)
     widget.side_views.value = True
+    widget.colour.value = colour
     _run(qtbot, widget)
+    return viewer, widget, layer, data, before
+
+
+def test_blended_widget_side_views_geometry(make_napari_viewer, qtbot):
+    viewer, _, layer, _, before = _blended_with_side_views(make_napari_viewer, qtbot)
     top = viewer.layers["cells blended (top)"]
     along_y = viewer.layers["cells blended side (along y)"]
     along_x = viewer.layers["cells blended side (along x)"]
@@ -209,7 +216,6 @@ def test_blended_widget_side_views_geometry(make_napari_viewer, qtbot):
     np.testing.assert_array_equal(layer.data, before)
 
 
-
 def test_blended_widget_colour_side_views(make_napari_viewer, qtbot):
     """Side views of the depth-coloured rendering: grey side view x the colour of each row's depth.
 
@@ -219,16 +225,9 @@ def test_blended_widget_colour_side_views(make_napari_viewer, qtbot):
     import matplotlib
 
     from viewer_plugin.kernels.projections import blended_projection
-    from viewer_plugin.widgets.projection import BlendedWidget
 
-    viewer = make_napari_viewer(show=True)
-    data = _stack()
-    before = data.copy()
-    layer = _add_stack(viewer, data)
-    widget = BlendedWidget(viewer)
-    widget.side_views.value = True
-    widget.colour.value = "magma"
-    _run(qtbot, widget)
+    viewer, widget, layer, data, before = _blended_with_side_views(make_napari_viewer, qtbot,
+                                                                   colour="magma")
     top = viewer.layers["cells blended (top)"]
     along_y = viewer.layers["cells blended side (along y)"]
     assert top.rgb and along_y.rgb and along_y.data.shape == (12, 48, 3)

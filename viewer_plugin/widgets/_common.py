@@ -37,7 +37,6 @@ def disconnect_layer_events(viewer: "napari.Viewer", callback: Any) -> None:
             pass
 
 
-
 def wrapped(label: Label) -> Label:
     """*label* with word wrap on (for short fixed notes)."""
     label.native.setWordWrap(True)
@@ -61,6 +60,7 @@ def result_text(*, lines: int = 5) -> TextEdit:
     margins = native.contentsMargins()
     native.setMinimumHeight(lines * metrics.lineSpacing() + margins.top() + margins.bottom() + 8)
     return box
+
 
 def layer_step(layer: Any, axis: int) -> float:
     """The layer's scale along *axis* (um per voxel when the file said so)."""
