@@ -379,7 +379,7 @@ def test_export_time_series_uses_current_time_point(make_napari_viewer, qtbot, t
 
 
 @pytest.mark.realdata
-def test_real_cortex_depth_map(make_napari_viewer, qtbot, realdata):
+def test_real_cortex_depth_map(realdata, make_napari_viewer, qtbot):
     """Open data: cortex_cells_serial_twophoton.ome.tif (BSD 3-Clause, (c) 2020 Adam Tyson, UCL,
     brainglobe/cellfinder test data); 5 um z-steps. Reference: numpy argmax x z-step."""
     from viewer_plugin.io import read_stack
