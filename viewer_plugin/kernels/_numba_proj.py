@@ -142,9 +142,42 @@ _BAND = 16
 
 
 @njit(inline="always")
+def _n_bands(nr):
+    """Number of bands of ``_BAND`` rows covering *nr* rows."""
+    return (nr + _BAND - 1) // _BAND
+
+
+@njit(inline="always")
+def _band(b, nr):
+    """The rows of band *b*."""
+    return range(b * _BAND, min(nr, (b + 1) * _BAND))
+
+
+@njit(inline="always")
+def _four_rows(block, z, r):
+    """Row *r* of slices z .. z+3 of *block*."""
+    return block[z, r], block[z + 1, r], block[z + 2, r], block[z + 3, r]
+
+
+@njit(inline="always")
+def _four_indices(ix, g):
+    """Global slice indices g .. g+3 in the integer type of the index state *ix*."""
+    return _as_index(ix, g), _as_index(ix, g + 1), _as_index(ix, g + 2), _as_index(ix, g + 3)
+
+
+@njit(inline="always")
 def _max_first(x, cur, i, zz):
     """(maximum, index) after seeing *x* at slice *zz*; a tie keeps the earlier index."""
     return _top(x, cur), _replace(i, _takes(x, cur, i), zz)
+
+
+@njit(inline="always")
+def _max_first4(x4, cur, i, z4):
+    """:func:`_max_first` over four values *x4* seen at slices *z4*, in that order."""
+    cur, i = _max_first(x4[0], cur, i, z4[0])
+    cur, i = _max_first(x4[1], cur, i, z4[1])
+    cur, i = _max_first(x4[2], cur, i, z4[2])
+    return _max_first(x4[3], cur, i, z4[3])
 
 
 @njit(inline="always")
@@ -172,27 +205,17 @@ def brightest_update(block, z0, vals, idx):
     as in :func:`tinted_update`.
     """
     nz, nr, nc = block.shape
-    for b in prange((nr + _BAND - 1) // _BAND):
-        rows = range(b * _BAND, min(nr, (b + 1) * _BAND))
+    for b in prange(_n_bands(nr)):
+        rows = _band(b, nr)
         z = 0
         while z + 4 <= nz:
-            g = z0 + z
             for r in rows:
-                ra = block[z, r]
-                rb = block[z + 1, r]
-                rc = block[z + 2, r]
-                rd = block[z + 3, r]
+                ra, rb, rc, rd = _four_rows(block, z, r)
                 v = vals[r]
                 ix = idx[r]
-                za = _as_index(ix, g)
-                zb = _as_index(ix, g + 1)
-                zc = _as_index(ix, g + 2)
-                zd = _as_index(ix, g + 3)
+                z4 = _four_indices(ix, z0 + z)
                 for c in range(nc):
-                    cur, i = _max_first(ra[c], v[c], ix[c], za)
-                    cur, i = _max_first(rb[c], cur, i, zb)
-                    cur, i = _max_first(rc[c], cur, i, zc)
-                    v[c], ix[c] = _max_first(rd[c], cur, i, zd)
+                    v[c], ix[c] = _max_first4((ra[c], rb[c], rc[c], rd[c]), v[c], ix[c], z4)
             z += 4
         while z < nz:
             for r in rows:
@@ -284,8 +307,8 @@ def tinted_update(block, z0, lo, scale, colours, vals, idx, tint):
     nz, nr, nc = block.shape
     lo32 = np.float32(lo)
     sc32 = np.float32(scale)
-    for b in prange((nr + _BAND - 1) // _BAND):
-        rows = range(b * _BAND, min(nr, (b + 1) * _BAND))
+    for b in prange(_n_bands(nr)):
+        rows = _band(b, nr)
         z = 0
         while z + 4 <= nz:
             g = z0 + z
@@ -294,30 +317,19 @@ def tinted_update(block, z0, lo, scale, colours, vals, idx, tint):
             c0, c1, c2 = _rgb32(colours, g + 2)
             d0, d1, d2 = _rgb32(colours, g + 3)
             for r in rows:
-                ra = block[z, r]
-                rb = block[z + 1, r]
-                rc = block[z + 2, r]
-                rd = block[z + 3, r]
+                ra, rb, rc, rd = _four_rows(block, z, r)
                 v = vals[r]
                 ix = idx[r]
                 t0 = tint[0, r]
                 t1 = tint[1, r]
                 t2 = tint[2, r]
-                za = _as_index(ix, g)
-                zb = _as_index(ix, g + 1)
-                zc = _as_index(ix, g + 2)
-                zd = _as_index(ix, g + 3)
+                z4 = _four_indices(ix, g)
                 for c in range(nc):
                     xa = ra[c]
                     xb = rb[c]
                     xc = rc[c]
                     xd = rd[c]
-                    cur, i = _max_first(xa, v[c], ix[c], za)
-                    cur, i = _max_first(xb, cur, i, zb)
-                    cur, i = _max_first(xc, cur, i, zc)
-                    cur, i = _max_first(xd, cur, i, zd)
-                    v[c] = cur
-                    ix[c] = i
+                    v[c], ix[c] = _max_first4((xa, xb, xc, xd), v[c], ix[c], z4)
                     # u is never NaN, so the ordered max is exact
                     ua = _unit(xa, lo32, sc32)
                     ub = _unit(xb, lo32, sc32)
