@@ -44,7 +44,7 @@ def main() -> int:
 
     from viewer_plugin import demo
     from viewer_plugin.figures import export_depth_figure
-    from viewer_plugin.kernels.projections import warm_up
+    from viewer_plugin.kernels.projection import warm_up
     from viewer_plugin.samples import demo_layer
     from viewer_plugin.widgets.projection import (
         BlendedWidget,

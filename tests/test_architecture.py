@@ -20,7 +20,7 @@ class Block:
             raise ImportError('blocked GUI import: ' + name)
 sys.meta_path.insert(0, Block())
 import viewer_plugin.kernels, viewer_plugin.io, viewer_plugin.demo, viewer_plugin.cli
-import viewer_plugin.kernels.projections, viewer_plugin.kernels.attenuation, viewer_plugin.kernels.bleaching
+import viewer_plugin.kernels.projection, viewer_plugin.kernels.attenuation, viewer_plugin.kernels.bleaching
 from viewer_plugin.cli import build_parser
 build_parser()
 print('ok')
@@ -59,7 +59,7 @@ def test_manifest_validates_with_imports():
     assert manifest.name == "stackdepth"
     assert all(c.id.startswith("stackdepth.") for c in manifest.contributions.commands)
     widgets = [w.display_name for w in manifest.contributions.widgets]
-    assert widgets == ["Depth colour projection", "Brightest-point projection", "Blended projection",
+    assert widgets == ["Depth colour projection", "Peak depth map", "Occlusion projection",
                        "Depth attenuation", "Bleaching check"]
     assert len(manifest.contributions.sample_data) >= 3
     assert manifest.contributions.readers and manifest.contributions.writers

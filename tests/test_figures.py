@@ -21,7 +21,7 @@ from viewer_plugin.figures import (
     nice_length,
 )
 from viewer_plugin.kernels import ParameterError
-from viewer_plugin.kernels.projections import depth_coded_projection, depth_legend
+from viewer_plugin.kernels.projection import depth_coded_projection, depth_legend
 
 
 def _result(n=12, z_step=5.0, cmap="viridis"):
@@ -31,7 +31,7 @@ def _result(n=12, z_step=5.0, cmap="viridis"):
     return depth_coded_projection(stack, z_step=z_step, cmap=cmap, clim=(0, 1000))
 
 
-PARAMS = {"method": "brightest", "cmap": "viridis", "depth_range_um": [0.0, 55.0], "clim": [0, 1000],
+PARAMS = {"method": "peak", "cmap": "viridis", "depth_range_um": [0.0, 55.0], "clim": [0, 1000],
           "gamma": 1.0, "z_step_um": 5.0, "voxel_size_um": [5.0, 0.5, 0.5],
           "source_file": "/data/cells.ome.tif"}
 
@@ -122,7 +122,7 @@ def test_bad_inputs(tmp_path):
 def test_methods_sentence():
     text = methods_sentence(PARAMS)
     assert text.startswith(f"Depth was colour-coded with stackdepth {__version__}: each pixel shows "
-                           "the depth of its brightest voxel")
+                           "the depth of its strongest voxel")
     assert "0\u201355 \u00b5m, viridis colour map" in text
     assert "5 \u00d7 0.5 \u00d7 0.5 \u00b5m" in text
     assert "not a calibrated intensity" in text

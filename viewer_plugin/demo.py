@@ -29,7 +29,7 @@ import numpy as np
 from scipy import ndimage
 
 from . import __version__
-from .kernels._validate import check_int, check_number
+from ._shared.validation import check_int, check_number
 
 __all__ = ["DemoStack", "fibre_slab", "bleach_series", "two_pass_pair", "SCENARIO"]
 

@@ -25,7 +25,9 @@ from typing import Any, Mapping, Sequence
 import numpy as np
 
 from . import __version__
-from .kernels._validate import check_number, fail
+from ._shared.atomic import atomic_write
+from ._shared.jsonio import write_json
+from ._shared.validation import check_number, fail
 
 __all__ = [
     "FigureFiles",
@@ -43,7 +45,7 @@ FIGURE_FORMATS = {".png": "png", ".tif": "tiff", ".tiff": "tiff", ".pdf": "pdf"}
 
 #: What each depth-coding method shows, in the words of a methods section.
 METHOD_WORDS = {
-    "brightest": "each pixel shows the depth of its brightest voxel along the optical axis, "
+    "peak": "each pixel shows the depth of its strongest voxel along the optical axis, "
                  "with brightness from that voxel's intensity",
     "weighted": "each pixel shows the intensity-weighted mean depth of the voxels along the "
                 "optical axis, with brightness from the maximum intensity",
@@ -88,12 +90,12 @@ class FigureFiles:
 
 
 def legend_parts(legend: Any) -> LegendParts:
-    """Read a :class:`~viewer_plugin.kernels.legend.DepthLegend` for drawing.
+    """Read a :class:`~viewer_plugin.kernels.DepthLegend` for drawing.
 
     Parameters
     ----------
     legend : DepthLegend
-        From :func:`viewer_plugin.kernels.projections.depth_legend` (uint8 ``image``,
+        From :func:`viewer_plugin.kernels.depth_legend` (uint8 ``image``,
         ``tick_fractions``, ``tick_labels`` in µm, ``depth_range``, ``orientation``).
 
     Returns
@@ -109,7 +111,7 @@ def legend_parts(legend: Any) -> LegendParts:
 
     Examples
     --------
-    >>> from viewer_plugin.kernels.projections import depth_legend
+    >>> from viewer_plugin.kernels import depth_legend
     >>> parts = legend_parts(depth_legend((0.0, 63.0), cmap="viridis"))
     >>> parts.labels, parts.image.dtype
     (('0', '20', '40', '60'), dtype('float32'))
@@ -191,12 +193,12 @@ def methods_sentence(parameters: Mapping[str, Any], *, legend_range: Sequence[fl
 
     Examples
     --------
-    >>> text = methods_sentence({"method": "brightest", "cmap": "viridis",
+    >>> text = methods_sentence({"method": "peak", "cmap": "viridis",
     ...                          "depth_range_um": [0, 59], "z_step_um": 1.0})
     >>> text.startswith("Depth was colour-coded with stackdepth")
     True
     """
-    method = str(parameters.get("method", "brightest"))
+    method = str(parameters.get("method", "peak"))
     words = METHOD_WORDS.get(method, f"method '{method}'")
     d_range = parameters.get("depth_range_um") or legend_range
     cmap = parameters.get("cmap", "viridis")
@@ -321,7 +323,7 @@ def build_depth_figure(result: Any, *, pixel_size_um: float | Sequence[float],
     Examples
     --------
     >>> import numpy as np
-    >>> from viewer_plugin.kernels.projections import depth_coded_projection
+    >>> from viewer_plugin.kernels import depth_coded_projection
     >>> stack = np.zeros((5, 20, 30), np.uint8); stack[3, 5:9, 5:25] = 200
     >>> fig = build_depth_figure(depth_coded_projection(stack, z_step=2.0), pixel_size_um=0.5)
     >>> fig.axes[1].get_ylabel()
@@ -335,7 +337,7 @@ def _build_figure(result: Any, *, pixel_size_um: Any, scale_bar_um: float | None
                   title: str | None, dpi: int) -> tuple[Any, LegendParts, tuple[float, float], float]:
     from matplotlib.figure import Figure
 
-    from .kernels.projections import depth_legend
+    from .kernels.projection import depth_legend
 
     rgb = _figure_rgb(result)
     pixel = _pixel_pair(pixel_size_um)
@@ -443,9 +445,6 @@ def export_depth_figure(
     20.0
     """
     from matplotlib import rc_context
-
-    from .commands._common import write_json
-    from .io._atomic import atomic_write
 
     path, sidecar, methods, fmt = _check_targets(Path(path), overwrite=overwrite)
     params = dict(parameters or {})

@@ -32,7 +32,7 @@ from typing import Callable
 import numba
 import numpy as np
 
-from viewer_plugin.kernels import projections as P
+from viewer_plugin.kernels import projection as P
 
 SHAPE = (64, 1024, 1024)
 REPEATS = 9
@@ -62,16 +62,16 @@ def make_stack(seed: int = 0) -> np.ndarray:
 def cases(stack: np.ndarray) -> dict[str, Callable[[], object]]:
     """The timed calls (explicit clim, as the widget passes its contrast limits)."""
     out: dict[str, Callable[[], object]] = {
-        "brightest_point": lambda: P.brightest_point(stack),
+        "brightest_point": lambda: P.peak_projection(stack),
     }
     for method in P.METHODS:
         out[f"depth_coded_projection[{method}]"] = (
             lambda m=method: P.depth_coded_projection(stack, method=m, clim=CLIM))
     out["depth_coded_projection[brightest, auto clim]"] = (
         lambda: P.depth_coded_projection(stack))
-    out["blended_projection"] = lambda: P.blended_projection(stack, clim=CLIM)
-    out["blended_projection[bottom]"] = lambda: P.blended_projection(stack, clim=CLIM, view="bottom")
-    out["blended_projection[cmap]"] = lambda: P.blended_projection(stack, clim=CLIM, cmap="viridis")
+    out["blended_projection"] = lambda: P.occlusion_projection(stack, clim=CLIM)
+    out["blended_projection[bottom]"] = lambda: P.occlusion_projection(stack, clim=CLIM, view="bottom")
+    out["blended_projection[cmap]"] = lambda: P.occlusion_projection(stack, clim=CLIM, cmap="viridis")
     return out
 
 

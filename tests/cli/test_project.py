@@ -1,7 +1,7 @@
 """``stackdepth project``: outputs, geometry, refusals and one-line errors.
 
 Reference values: the ``max`` output is compared with ``numpy.max`` along z and the depth of the
-brightest voxel with ``numpy.argmax`` (numpy documentation: first occurrence on ties).
+strongest voxel with ``numpy.argmax`` (numpy documentation: first occurrence on ties).
 """
 
 from __future__ import annotations
@@ -32,7 +32,7 @@ def stack_file(tmp_path):
     return path, data
 
 
-def test_brightest_writes_rgb_with_pixel_size(stack_file, tmp_path, capsys):
+def test_peak_writes_rgb_with_pixel_size(stack_file, tmp_path, capsys):
     path, data = stack_file
     out = tmp_path / "bars_depth.ome.tif"
     assert main(["project", str(path), "-o", str(out)]) == 0
@@ -42,7 +42,7 @@ def test_brightest_writes_rgb_with_pixel_size(stack_file, tmp_path, capsys):
     assert written.data.shape == (32, 40, 3) and written.data.dtype == np.uint8
     assert written.scale[:2] == pytest.approx((0.25, 0.5))
     params = written.metadata["projection"]
-    assert params["method"] == "brightest" and params["z_step_um"] == pytest.approx(2.0)
+    assert params["method"] == "peak" and params["z_step_um"] == pytest.approx(2.0)
     assert params["depth_range_um"] == pytest.approx([0.0, 18.0])  # (10 - 1) slices x 2 um
     # pixels on the bar of slice 0 and of slice 9 get the two ends of viridis (matplotlib reference)
     from matplotlib import colormaps
@@ -61,10 +61,10 @@ def test_max_equals_numpy_max(stack_file, tmp_path):
     np.testing.assert_array_equal(written.data, data.max(axis=0))  # numpy reference
 
 
-def test_blended_float32_and_view(stack_file, tmp_path):
+def test_occlusion_float32_and_view(stack_file, tmp_path):
     path, _ = stack_file
-    out = tmp_path / "bars_blend.ome.tif"
-    assert main(["project", str(path), "-o", str(out), "--method", "blended", "--view", "bottom",
+    out = tmp_path / "bars_occlusion.ome.tif"
+    assert main(["project", str(path), "-o", str(out), "--method", "occlusion", "--view", "bottom",
                  "--density", "0.5"]) == 0
     written = read_stack(out)
     assert written.axes == "YX" and written.data.dtype == np.float32

@@ -161,7 +161,7 @@ def test_written_files_get_normal_permissions(tmp_path):
     """A result is readable like any other file the user makes (0o666 less the umask), not 0o600."""
     import os
 
-    from viewer_plugin.io._atomic import _UMASK
+    from viewer_plugin._shared.atomic import _UMASK
 
     path = write_ome_tiff(tmp_path / "p.ome.tif", np.zeros((2, 4, 4), np.uint8), axes="ZYX",
                           scale=(1, 1, 1))

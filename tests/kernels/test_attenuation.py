@@ -161,14 +161,14 @@ def test_exponential_fit_agrees_with_curve_fit(fit60):
     assert length == pytest.approx(fit60.length_um, rel=0.01)
 
 
-def test_histogram_model_agrees_with_match_histograms():
+def test_quantile_model_agrees_with_match_histograms():
     # skimage.exposure.match_histograms (reference library) maps each slice onto slice 0;
     # our per-slice quantile maps (1025 levels) must give the same picture within 1 % of the
     # reference slice's range (continuous data, every voxel sampled).
     rng = np.random.default_rng(11)
     base = rng.gamma(2.0, 50.0, size=(12, 96, 96)) + 10.0
     stack = base * np.exp(-np.arange(12) * 3.0 / 30.0)[:, None, None] + 100.0
-    fit = estimate_attenuation(stack, z_step=3.0, model="histogram", lateral_step=1)
+    fit = estimate_attenuation(stack, z_step=3.0, model="quantile", lateral_step=1)
     assert fit.quantile_maps is not None and fit.quantile_maps[0].shape == (12, 1025)
     out = correct_attenuation(stack, fit)
     span = np.ptp(stack[0])
@@ -244,10 +244,10 @@ def test_max_gain_caps_with_a_warning(stack60, fit60):
     assert np.median(deepest) == pytest.approx(1.5, rel=1e-3)
 
 
-def test_histogram_correction_on_dask_equals_numpy():
+def test_quantile_correction_on_dask_equals_numpy():
     da = pytest.importorskip("dask.array")
     stack = beer_lambert(n=12, shape=(64, 64), seed=13)
-    fit = estimate_attenuation(stack, z_step=2.0, model="histogram")
+    fit = estimate_attenuation(stack, z_step=2.0, model="quantile")
     np.testing.assert_allclose(correct_attenuation(da.from_array(stack, chunks=(5, 64, 64)), fit).compute(),
                                correct_attenuation(stack, fit), rtol=1e-6)
 
@@ -357,9 +357,9 @@ def test_saturated_foreground_is_noted(stack60):
     assert any("saturated" in note for note in fit.warnings)
 
 
-def test_histogram_capping_falls_back_to_the_capped_gain():
+def test_quantile_capping_falls_back_to_the_capped_gain():
     stack = beer_lambert(n=12, length=10.0, shape=(64, 64), seed=14)
-    fit = estimate_attenuation(stack, z_step=2.0, model="histogram")
+    fit = estimate_attenuation(stack, z_step=2.0, model="quantile")
     with pytest.warns(AttenuationWarning, match="capped"):
         out = correct_attenuation(stack, fit, max_gain=2.0)
     capped = np.flatnonzero(fit.gain > 2.0)

@@ -5,7 +5,9 @@ References used below (see /work/shared/REFERENCES.md):
   first-order kinetics (from memory);
 - a sum of exponentials or a non-fading part for non-uniform illumination: Berglund,
   J Chem Phys 2004, doi:10.1063/1.1636726;
-- ratio, fitted-decay and histogram-matching corrections: K. Miura, F1000Research 9:1494, 2020;
+- rescaling by the measured signal: ratio normalisation to the first frame (common practice);
+- rescaling by the fitted decay: follows from first-order kinetics (derived);
+- histogram specification: Gonzalez & Woods, Digital Image Processing, ch. 3 (from memory);
 - nonlinear least squares: scipy.optimize.curve_fit; histogram matching:
   skimage.exposure.match_histograms (reference libraries).
 """
@@ -19,7 +21,13 @@ import pytest
 from scipy.optimize import curve_fit
 from skimage.exposure import match_histograms
 
-from viewer_plugin.kernels import Cancelled, ParameterError, correct_bleaching, estimate_bleaching
+from viewer_plugin.kernels import (
+    Cancelled,
+    ParameterError,
+    correct_bleaching,
+    equalise_to_reference,
+    estimate_bleaching,
+)
 from viewer_plugin.kernels.bleaching import BleachingReport
 
 OFFSET = 100.0
@@ -265,7 +273,7 @@ def test_fit_correction_flattens_the_foreground(dtype):
 
 
 def test_fit_correction_keeps_the_background_at_the_offset():
-    """(I - offset) * g + offset: a voxel at the offset stays there (Miura 2020, after background)."""
+    """(I - offset) * g + offset: a voxel at the offset stays there (background restored, common practice)."""
     data = series_with(first_order(0.05, 10), seed=None, haze=0.0)
     report = estimate_bleaching(data, offset=OFFSET)
     flat = correct_bleaching(data, report)
@@ -274,54 +282,57 @@ def test_fit_correction_keeps_the_background_at_the_offset():
 
 
 def test_ratio_correction_makes_the_measured_profile_constant():
-    """Ratio to the first frame after background (Miura 2020): every frame's foreground mean
-    equals the first frame's, by construction."""
+    """Ratio normalisation to the first frame after background (common practice): every
+    frame's foreground mean equals the first frame's, by construction."""
     data = series_with(first_order(0.03, 12), seed=6)
     report = estimate_bleaching(data, offset=OFFSET)
-    flat = correct_bleaching(data, report, method="ratio")
+    flat = correct_bleaching(data, report, rescale="measured")
     again = estimate_bleaching(flat, offset=OFFSET, mask=flat[0] > OFFSET + 100)
     first_mask = estimate_bleaching(data, offset=OFFSET, mask=flat[0] > OFFSET + 100)
     np.testing.assert_allclose(again.profile, again.profile[0], rtol=0.02)
     assert first_mask.fraction_lost > 0.25
 
 
-def test_histogram_correction_matches_scikit_image():
+def test_equalise_matches_scikit_image():
     """skimage.exposure.match_histograms of each frame to the first frame (reference library)."""
     data = series_with(first_order(0.05, 6), seed=7)
-    report = estimate_bleaching(data)
-    matched = correct_bleaching(data, report, method="histogram")
+    matched = equalise_to_reference(data)
     assert matched.dtype == np.float32
     for t in range(data.shape[0]):
         reference = match_histograms(data[t], data[0])
         np.testing.assert_allclose(matched[t], reference, rtol=1e-6, atol=1e-3)
 
 
-def test_histogram_correction_of_float_input_matches_scikit_image():
+def test_equalise_of_float_input_matches_scikit_image():
     data = series_with(first_order(0.05, 4), seed=None) + np.random.default_rng(0).normal(
         0, 1, size=(4, 4, 48, 48))
-    report = estimate_bleaching(data)
-    matched = correct_bleaching(data, report, method="histogram")
+    matched = equalise_to_reference(data)
     np.testing.assert_allclose(matched[2], match_histograms(data[2], data[0]), rtol=1e-5)
 
 
-@pytest.mark.parametrize("method", ["fit", "ratio", "histogram"])
-def test_dask_correction_is_lazy_and_equal(method):
+@pytest.mark.parametrize("rescale", ["model", "measured", "equalise"])
+def test_dask_correction_is_lazy_and_equal(rescale):
     da = pytest.importorskip("dask.array")
     data = series_with(first_order(0.04, 8), seed=3)
     report = estimate_bleaching(data)
-    lazy = correct_bleaching(da.from_array(data, chunks=(3, 2, 24, 24)), report, method=method)
+
+    def run(series):
+        if rescale == "equalise":
+            return equalise_to_reference(series)
+        return correct_bleaching(series, report, rescale=rescale)
+
+    lazy = run(da.from_array(data, chunks=(3, 2, 24, 24)))
     assert type(lazy).__module__.startswith("dask")
     assert lazy.dtype == np.float32
-    np.testing.assert_allclose(lazy.compute(), correct_bleaching(data, report, method=method),
-                               rtol=1e-6)
+    np.testing.assert_allclose(lazy.compute(), run(data), rtol=1e-6)
 
 
 def test_correction_rejects_a_report_of_another_series():
     report = estimate_bleaching(series_with(first_order(0.04, 8), seed=None))
     with pytest.raises(ParameterError, match="report: expected a report of a series with 9 frames"):
         correct_bleaching(series_with(first_order(0.04, 9), seed=None), report)
-    with pytest.raises(ParameterError, match="method: expected one of"):
-        correct_bleaching(series_with(first_order(0.04, 8), seed=None), report, method="magic")
+    with pytest.raises(ParameterError, match="rescale: expected one of"):
+        correct_bleaching(series_with(first_order(0.04, 8), seed=None), report, rescale="magic")
     with pytest.raises(ParameterError, match="report: expected a BleachingReport"):
         correct_bleaching(series_with(first_order(0.04, 8), seed=None), {"rate": 0.1})
 

@@ -15,7 +15,7 @@ import numpy as np
 import pytest
 
 from viewer_plugin.kernels import ParameterError, depth_coded_projection, depth_legend
-from viewer_plugin.kernels.legend import DepthLegend, nice_ticks
+from viewer_plugin.kernels.projection.legend import DepthLegend, nice_ticks
 
 
 @pytest.mark.parametrize(

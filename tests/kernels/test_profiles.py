@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 
 from viewer_plugin.kernels import ParameterError, background_level, slice_background
-from viewer_plugin.kernels.profiles import _clipped_stats, clipped_rows
+from viewer_plugin.kernels.primitives.background import _clipped_stats, clipped_rows
 
 
 def poisson_background(mu=3.0, offset=100.0, shape=(6, 128, 128), seed=0):

@@ -21,8 +21,8 @@ import numpy as np
 import pytest
 
 from viewer_plugin.kernels import Cancelled, ParameterError
-from viewer_plugin.kernels import _proj_combine as pc
-from viewer_plugin.kernels import projections as P
+from viewer_plugin.kernels import projection as P
+from viewer_plugin.kernels.projection import colour, limits, reduction
 
 DTYPES = [np.uint8, np.uint16, np.int16, np.float32, np.float64]
 REALDATA = Path(__file__).resolve().parents[2].parent / "shared" / "realdata"
@@ -37,61 +37,62 @@ def random_stack(dtype, shape=(9, 7, 11), seed=0, high=None):
     return rng.integers(0, top, size=shape, endpoint=True).astype(dtype)
 
 
-# --- brightest point: numpy.max / numpy.argmax -------------------------------
+# --- peak projection: numpy.max / numpy.argmax -------------------------------
 
 @pytest.mark.parametrize("dtype", DTYPES)
-def test_brightest_point_equals_numpy(dtype):
+def test_peak_projection_equals_numpy(dtype):
     stack = random_stack(dtype)
-    result = P.brightest_point(stack)
+    result = P.peak_projection(stack)
     # numpy documentation: argmax returns the first occurrence of the maximum
-    np.testing.assert_array_equal(result.values, np.max(stack, axis=0))
-    np.testing.assert_array_equal(result.depth, np.argmax(stack, axis=0))
-    assert result.values.dtype == stack.dtype
-    assert result.depth.dtype == np.int32
+    np.testing.assert_array_equal(result.peak, np.max(stack, axis=0))
+    np.testing.assert_array_equal(result.index, np.argmax(stack, axis=0))
+    assert result.peak.dtype == stack.dtype
+    assert result.index.dtype == np.int16  # compact slice index below 32768 slices
+    np.testing.assert_array_equal(result.depth_um, np.argmax(stack, axis=0).astype(np.float32))
 
 
-def test_brightest_point_ties_uint8():
+def test_peak_projection_ties_uint8():
     # values 0..2 only: most rays have ties; numpy.argmax keeps the first
     stack = random_stack(np.uint8, shape=(12, 20, 16), high=2)
-    result = P.brightest_point(stack)
-    np.testing.assert_array_equal(result.depth, np.argmax(stack, axis=0))
+    result = P.peak_projection(stack)
+    np.testing.assert_array_equal(result.index, np.argmax(stack, axis=0))
     constant = np.full((5, 3, 4), 7, np.uint8)
-    assert np.all(P.brightest_point(constant).depth == 0)
+    assert np.all(P.peak_projection(constant).index == 0)
 
 
 
-def test_brightest_point_beyond_int16_slice_index():
+def test_peak_projection_beyond_int16_slice_index():
     # 40000 slices: the slice index no longer fits the compact int16 state (numpy.argmax)
     stack = np.zeros((40000, 1, 3), np.uint8)
     stack[39000, 0, 0] = 9
     stack[[5, 35000], 0, 1] = 4  # tie across the int16 range: the first wins
-    result = P.brightest_point(stack)
-    np.testing.assert_array_equal(result.depth, np.argmax(stack, axis=0))
+    result = P.peak_projection(stack)
+    np.testing.assert_array_equal(result.index, np.argmax(stack, axis=0))
     coded = P.depth_coded_projection(stack, method="tinted", clim=(0, 9), z_step=0.5)
     np.testing.assert_array_equal(coded.depth_um[0, :2], [19500.0, 2.5])
     assert np.isnan(coded.depth_um[0, 2])
 
-def test_brightest_point_nan_is_no_signal():
+def test_peak_projection_nan_is_no_signal():
     stack = random_stack(np.float32, shape=(6, 5, 8), seed=3)
     stack[np.random.default_rng(4).random(stack.shape) < 0.3] = np.nan
     stack[:, 0, 0] = np.nan  # an all-NaN ray
     stack[:, 1, 1] = [np.nan, 2, 5, 5, np.nan, 1]  # tie after NaN
-    result = P.brightest_point(stack)
+    result = P.peak_projection(stack)
     ok = ~np.all(np.isnan(stack), axis=0)
     # numpy documentation: nanmax / nanargmax ignore NaN
-    np.testing.assert_array_equal(result.values[ok], np.nanmax(stack[:, ok], axis=0))
-    np.testing.assert_array_equal(result.depth[ok], np.nanargmax(stack[:, ok], axis=0))
-    assert np.isnan(result.values[0, 0]) and result.depth[0, 0] == 0
-    assert result.depth[1, 1] == 2
+    np.testing.assert_array_equal(result.peak[ok], np.nanmax(stack[:, ok], axis=0))
+    np.testing.assert_array_equal(result.index[ok], np.nanargmax(stack[:, ok], axis=0))
+    assert np.isnan(result.peak[0, 0]) and result.index[0, 0] == 0
+    assert result.index[1, 1] == 2
 
 
 def test_bool_and_wide_integers():
     rng = np.random.default_rng(5)
     for stack in (rng.random((4, 3, 5)) > 0.5, rng.integers(-2**31, 2**31 - 1, (4, 3, 5))):
-        result = P.brightest_point(stack)
-        np.testing.assert_array_equal(result.values, stack.max(axis=0))
-        np.testing.assert_array_equal(result.depth, stack.argmax(axis=0))
-        assert result.values.dtype == stack.dtype
+        result = P.peak_projection(stack)
+        np.testing.assert_array_equal(result.peak, stack.max(axis=0))
+        np.testing.assert_array_equal(result.index, stack.argmax(axis=0))
+        assert result.peak.dtype == stack.dtype
 
 
 @pytest.mark.parametrize(
@@ -101,9 +102,9 @@ def test_bool_and_wide_integers():
 def test_any_axis_and_leading_axes_kept(shape, axis):
     stack = random_stack(np.uint16, shape=shape, seed=7)
     expected_shape = tuple(np.delete(shape, axis % len(shape)))
-    result = P.brightest_point(stack, axis=axis)
-    np.testing.assert_array_equal(result.values, np.max(stack, axis=axis))
-    np.testing.assert_array_equal(result.depth, np.argmax(stack, axis=axis))
+    result = P.peak_projection(stack, axis=axis)
+    np.testing.assert_array_equal(result.peak, np.max(stack, axis=axis))
+    np.testing.assert_array_equal(result.index, np.argmax(stack, axis=axis))
     coded = P.depth_coded_projection(stack, axis=axis, clim=(100, 2000), method="tinted")
     assert coded.rgb.shape == expected_shape + (3,)
     assert coded.depth_um.shape == expected_shape
@@ -113,18 +114,18 @@ def test_any_axis_and_leading_axes_kept(shape, axis):
         b = P.depth_coded_projection(np.ascontiguousarray(moved), clim=(100, 2000), method=method)
         np.testing.assert_array_equal(a.rgb, b.rgb)
         np.testing.assert_array_equal(a.depth_um, b.depth_um)
-    blended = P.blended_projection(stack, axis=axis, clim=(100, 2000))
-    assert blended.shape == expected_shape
+    occluded = P.occlusion_projection(stack, axis=axis, clim=(100, 2000))
+    assert occluded.shape == expected_shape
 
 
 def test_input_not_modified():
     stack = random_stack(np.uint16)
     stack.setflags(write=False)
     copy = stack.copy()
-    P.brightest_point(stack)
+    P.peak_projection(stack)
     for method in P.METHODS:
         P.depth_coded_projection(stack, method=method)
-    P.blended_projection(stack, view="bottom", cmap="magma")
+    P.occlusion_projection(stack, view="bottom", cmap="magma")
     np.testing.assert_array_equal(stack, copy)
 
 
@@ -132,7 +133,7 @@ def test_input_not_modified():
 
 @pytest.mark.parametrize("cmap", ["viridis", "magma", "cividis", "turbo"])
 @pytest.mark.parametrize("gamma", [1.0, 0.5])
-def test_depth_coded_brightest_matches_matplotlib(cmap, gamma):
+def test_depth_coded_peak_matches_matplotlib(cmap, gamma):
     stack = random_stack(np.uint16, shape=(13, 17, 19), seed=11)
     lo, hi, z_step = 300.0, 2700.0, 0.7
     result = P.depth_coded_projection(stack, z_step=z_step, cmap=cmap, clim=(lo, hi), gamma=gamma)
@@ -231,8 +232,8 @@ def test_display_limits_are_the_projections_defaults():
     stack = random_stack(np.uint16, shape=(9, 20, 24), seed=59)
     limits = P.display_limits(np.moveaxis(stack, 0, 2), axis=2)
     assert limits == P.depth_coded_projection(stack).clim
-    np.testing.assert_array_equal(P.blended_projection(stack),
-                                  P.blended_projection(stack, clim=limits))
+    np.testing.assert_array_equal(P.occlusion_projection(stack),
+                                  P.occlusion_projection(stack, clim=limits))
     with pytest.raises(ParameterError, match="stack"):
         P.display_limits(np.zeros((4, 4)))
 
@@ -258,14 +259,14 @@ def test_default_limits_from_percentiles():
 @pytest.mark.parametrize("dtype", [np.uint8, np.uint16, np.float32, np.float64])
 def test_percentiles_from_sample_equals_numpy(dtype):
     sample = random_stack(dtype, shape=(1001,), seed=23, high=200).astype(dtype)
-    got = pc.percentiles_from_sample(sample, (0.1, 99.9))
+    got = limits.percentiles_from_sample(sample, (0.1, 99.9))
     # numpy documentation: percentile, method "linear"
     assert got == pytest.approx(tuple(np.percentile(sample, [0.1, 99.9])), rel=1e-12)
 
 
 def test_percentiles_ignore_nan_and_constant_stack():
     sample = np.array([np.nan, 1.0, 2.0, np.inf, 3.0])
-    assert pc.percentiles_from_sample(sample, (0, 100)) == (1.0, 3.0)
+    assert limits.percentiles_from_sample(sample, (0, 100)) == (1.0, 3.0)
     flat = np.full((4, 5, 6), 9, np.uint16)
     result = P.depth_coded_projection(flat)
     assert result.clim == (9.0, 10.0)
@@ -274,12 +275,12 @@ def test_percentiles_ignore_nan_and_constant_stack():
 
 def test_large_stack_limits_estimated_from_subsample():
     stack = random_stack(np.uint16, shape=(40, 256, 256), seed=29)
-    low, high = pc.estimate_clim(stack)
+    low, high = limits.estimate_clim(stack)
     exact = np.percentile(stack, [0.1, 99.9])
     assert abs(low - exact[0]) < 0.01 * 3000 and abs(high - exact[1]) < 0.01 * 3000
 
 
-# --- blended projection: Max 1995 closed form, Levoy compositing -----------------
+# --- occlusion projection: Max 1995 closed form, Levoy compositing -----------------
 
 @pytest.mark.parametrize("n", [1, 4, 37])
 @pytest.mark.parametrize("dtype", [np.uint16, np.float64])
@@ -290,7 +291,7 @@ def test_homogeneous_slab_closed_form(n, dtype, view):
     lo, hi = 0.0, 1000.0
     u = value / hi
     stack = np.full((n, 2, 3), value, dtype)
-    out = P.blended_projection(stack, z_step=thickness / n, density=density, clim=(lo, hi), view=view)
+    out = P.occlusion_projection(stack, z_step=thickness / n, density=density, clim=(lo, hi), view=view)
     np.testing.assert_allclose(out, u * (1 - np.exp(-density * u * thickness)), rtol=1e-6)
     assert out.dtype == np.float32
 
@@ -312,39 +313,39 @@ def reference_composite(stack, lo, hi, kappa, reverse=False, colours=None):
 
 @pytest.mark.parametrize("dtype", DTYPES)
 @pytest.mark.parametrize("view", ["top", "bottom"])
-def test_blended_against_plain_compositing(dtype, view):
+def test_occlusion_against_plain_compositing(dtype, view):
     stack = random_stack(dtype, shape=(15, 8, 9), seed=31)
     lo, hi, density, z_step = 50.0, 800.0, 0.3, 0.8
-    out = P.blended_projection(stack, z_step=z_step, density=density, clim=(lo, hi), view=view)
+    out = P.occlusion_projection(stack, z_step=z_step, density=density, clim=(lo, hi), view=view)
     ref = reference_composite(stack, lo, hi, density * z_step, reverse=view == "bottom")
     np.testing.assert_allclose(out, ref, rtol=1e-5, atol=1e-6)
     assert out.dtype == np.float32
 
 
 @pytest.mark.parametrize("dtype", [np.uint8, np.float32])
-def test_blended_rgb_variant(dtype):
+def test_occlusion_rgb_variant(dtype):
     stack = random_stack(dtype, shape=(12, 6, 7), seed=37)
     lo, hi, density = 20.0, 200.0, 0.5
-    out = P.blended_projection(stack, density=density, clim=(lo, hi), cmap="inferno", view="bottom")
+    out = P.occlusion_projection(stack, density=density, clim=(lo, hi), cmap="inferno", view="bottom")
     colours = matplotlib.colormaps["inferno"](np.arange(12) / 11)[:, :3]  # matplotlib documentation
     ref = reference_composite(stack, lo, hi, density, reverse=True, colours=colours)
     np.testing.assert_allclose(out, ref, rtol=1e-5, atol=1e-6)
     assert out.shape == (6, 7, 3) and out.dtype == np.float32
 
 
-def test_blended_default_density():
+def test_occlusion_default_density():
     stack = np.full((20, 2, 2), 1.0)
-    out = P.blended_projection(stack, z_step=0.5, clim=(0, 1))
+    out = P.occlusion_projection(stack, z_step=0.5, clim=(0, 1))
     # density = DEFAULT_OPTICAL_DEPTH / depth: a fully bright column reaches 1 - e^-10
     np.testing.assert_allclose(out, 1 - np.exp(-P.DEFAULT_OPTICAL_DEPTH), rtol=1e-6)
 
 
-def test_blended_front_hides_back():
+def test_occlusion_front_hides_back():
     stack = np.zeros((10, 1, 1), np.float32)
     stack[:5] = 0.3
     stack[5:] = 0.9
-    top = P.blended_projection(stack, density=50.0, clim=(0, 1))
-    bottom = P.blended_projection(stack, density=50.0, clim=(0, 1), view="bottom")
+    top = P.occlusion_projection(stack, density=50.0, clim=(0, 1))
+    bottom = P.occlusion_projection(stack, density=50.0, clim=(0, 1), view="bottom")
     assert top[0, 0] == pytest.approx(0.3, rel=1e-4)
     assert bottom[0, 0] == pytest.approx(0.9, rel=1e-4)
 
@@ -354,8 +355,8 @@ def test_blended_front_hides_back():
 @pytest.fixture
 def tiny_chunks(monkeypatch):
     """Chunks of one or a few planes, to exercise the combine path."""
-    monkeypatch.setattr(pc, "CHUNK_BYTES", 3 * 7 * 11 * 2)
-    monkeypatch.setattr(pc, "COPY_CHUNK_BYTES", 2 * 7 * 11 * 4)
+    monkeypatch.setattr(reduction, "CHUNK_BYTES", 3 * 7 * 11 * 2)
+    monkeypatch.setattr(reduction, "COPY_CHUNK_BYTES", 2 * 7 * 11 * 4)
 
 
 def test_chunked_integer_rays_of_zeros_and_ties(tiny_chunks):
@@ -363,9 +364,9 @@ def test_chunked_integer_rays_of_zeros_and_ties(tiny_chunks):
     stack = random_stack(np.uint8, shape=(10, 7, 11), seed=43, high=3)
     stack[:, 0, 0] = 0
     stack[:, 1, 1] = [0, 0, 0, 2, 2, 2, 2, 2, 0, 2]
-    result = P.brightest_point(stack)
-    np.testing.assert_array_equal(result.depth, np.argmax(stack, axis=0))
-    for method in ("brightest", "tinted"):
+    result = P.peak_projection(stack)
+    np.testing.assert_array_equal(result.index, np.argmax(stack, axis=0))
+    for method in ("peak", "tinted"):
         coded = P.depth_coded_projection(stack, method=method, clim=(0, 3))
         expected = np.where(stack.max(0) > 0, np.argmax(stack, axis=0), np.nan)
         np.testing.assert_array_equal(coded.depth_um, expected.astype(np.float32))
@@ -375,20 +376,20 @@ def test_chunked_equals_one_chunk(dtype, tiny_chunks, monkeypatch):
     stack = random_stack(dtype, shape=(10, 7, 11), seed=41)
     calls = []
     chunked = [
-        P.brightest_point(stack, progress=lambda d, t: calls.append((d, t))),
+        P.peak_projection(stack, progress=lambda d, t: calls.append((d, t))),
         *(P.depth_coded_projection(stack, method=m, clim=(100, 900)) for m in P.METHODS),
-        P.blended_projection(stack, clim=(100, 900), view="bottom", cmap="viridis"),
+        P.occlusion_projection(stack, clim=(100, 900), view="bottom", cmap="viridis"),
     ]
     assert len(calls) > 3 and calls[-1][0] == calls[-1][1]
-    monkeypatch.setattr(pc, "CHUNK_BYTES", 2**40)
-    monkeypatch.setattr(pc, "COPY_CHUNK_BYTES", 2**40)
+    monkeypatch.setattr(reduction, "CHUNK_BYTES", 2**40)
+    monkeypatch.setattr(reduction, "COPY_CHUNK_BYTES", 2**40)
     whole = [
-        P.brightest_point(stack),
+        P.peak_projection(stack),
         *(P.depth_coded_projection(stack, method=m, clim=(100, 900)) for m in P.METHODS),
-        P.blended_projection(stack, clim=(100, 900), view="bottom", cmap="viridis"),
+        P.occlusion_projection(stack, clim=(100, 900), view="bottom", cmap="viridis"),
     ]
-    np.testing.assert_array_equal(chunked[0].values, whole[0].values)
-    np.testing.assert_array_equal(chunked[0].depth, whole[0].depth)
+    np.testing.assert_array_equal(chunked[0].peak, whole[0].peak)
+    np.testing.assert_array_equal(chunked[0].index, whole[0].index)
     for a, b in zip(chunked[1:4], whole[1:4]):
         if a.method == "weighted":  # sums regrouped by chunk: equal to rounding
             np.testing.assert_allclose(a.rgb, b.rgb, rtol=1e-6, atol=1e-7)
@@ -402,36 +403,36 @@ def test_dask_input_equals_numpy():
     da = pytest.importorskip("dask.array")
     stack = random_stack(np.uint16, shape=(12, 9, 10), seed=43)
     lazy = da.from_array(stack, chunks=(5, 9, 10))
-    a, b = P.brightest_point(lazy), P.brightest_point(stack)
-    np.testing.assert_array_equal(a.values, b.values)
-    np.testing.assert_array_equal(a.depth, b.depth)
+    a, b = P.peak_projection(lazy), P.peak_projection(stack)
+    np.testing.assert_array_equal(a.peak, b.peak)
+    np.testing.assert_array_equal(a.index, b.index)
     c, d = P.depth_coded_projection(lazy), P.depth_coded_projection(stack)
     assert c.clim == d.clim
     np.testing.assert_array_equal(c.rgb, d.rgb)
-    np.testing.assert_allclose(P.blended_projection(lazy, view="bottom"),
-                               P.blended_projection(stack, view="bottom"), rtol=1e-6)
+    np.testing.assert_allclose(P.occlusion_projection(lazy, view="bottom"),
+                               P.occlusion_projection(stack, view="bottom"), rtol=1e-6)
     per_plane = da.from_array(stack, chunks=(1, 9, 10))  # small chunks are grouped
     calls = []
-    f = P.brightest_point(per_plane, progress=lambda d, t: calls.append(t))
-    np.testing.assert_array_equal(f.depth, b.depth)
+    f = P.peak_projection(per_plane, progress=lambda d, t: calls.append(t))
+    np.testing.assert_array_equal(f.index, b.index)
     assert calls[-1] < 12
     lazy4 = da.from_array(np.stack([stack, stack[::-1]]), chunks=(1, 4, 9, 10))
-    e = P.brightest_point(lazy4, axis=1)
-    np.testing.assert_array_equal(e.depth[0], b.depth)
+    e = P.peak_projection(lazy4, axis=1)
+    np.testing.assert_array_equal(e.index[0], b.index)
 
 
 def partials_of(stack, n_parts, kind):
     """Partial results of consecutive z-ranges from the compiled chunk step."""
-    from viewer_plugin.kernels import _numba_proj as nb
+    from viewer_plugin.kernels.projection import _compiled as nb
 
     bounds = np.linspace(0, len(stack), n_parts + 1).astype(int)
     out = []
     for start, stop in zip(bounds[:-1], bounds[1:]):
         block = np.ascontiguousarray(stack[start:stop])
         shape = stack.shape[1:]
-        if kind == "brightest":
+        if kind == "peak":
             vals, idx = np.full(shape, np.nan, stack.dtype), np.full(shape, -1, np.int32)
-            nb.brightest_update(block, start, vals, idx)
+            nb.peak_update(block, start, vals, idx)
             out.append((vals, idx))
         elif kind == "weighted":
             vals, su, suz = np.full(shape, np.nan, stack.dtype), np.zeros(shape), np.zeros(shape)
@@ -445,13 +446,13 @@ def partials_of(stack, n_parts, kind):
             out.append((vals, idx, tint))
         else:
             colour, trans = np.zeros(shape), np.ones(shape)
-            nb.blend_update_float(block, 0.2, 1 / 0.6, 0.7, False, colour, trans)
+            nb.occlusion_update_float(block, 0.2, 1 / 0.6, 0.7, False, colour, trans)
             out.append((colour, trans))
     return out
 
 
-COMBINE = {"brightest": pc.combine_brightest, "weighted": pc.combine_weighted,
-           "tinted": pc.combine_tinted, "blend": pc.over}
+COMBINE = {"peak": reduction.combine_peak, "weighted": reduction.combine_weighted,
+           "tinted": reduction.combine_tinted, "blend": reduction.over}
 
 
 @pytest.mark.parametrize("kind", list(COMBINE))
@@ -476,7 +477,7 @@ def test_over_operator_worked_example():
     # Porter & Duff: C = Ca + (1 - alpha_a) Cb, alpha = alpha_a + (1 - alpha_a) alpha_b
     front = (np.array(0.3), np.array(1 - 0.5))
     back = (np.array(0.6), np.array(1 - 0.8))
-    colour, trans = pc.over(front, back)
+    colour, trans = reduction.over(front, back)
     assert float(colour) == pytest.approx(0.3 + 0.5 * 0.6)
     assert 1 - float(trans) == pytest.approx(0.5 + 0.5 * 0.8)
 
@@ -486,16 +487,16 @@ def test_over_operator_worked_example():
 def test_progress_and_cancel(tiny_chunks):
     stack = random_stack(np.uint16, shape=(10, 7, 11))
     seen = []
-    P.blended_projection(stack, progress=lambda d, t: seen.append((d, t)))
+    P.occlusion_projection(stack, progress=lambda d, t: seen.append((d, t)))
     assert seen[0][0] == 0 and [d for d, _ in seen] == list(range(len(seen)))
 
     def stop(done, total):
         if done == 2:
             raise Cancelled
 
-    for call in (lambda: P.brightest_point(stack, progress=stop),
+    for call in (lambda: P.peak_projection(stack, progress=stop),
                  lambda: P.depth_coded_projection(stack, progress=stop),
-                 lambda: P.blended_projection(stack, progress=stop)):
+                 lambda: P.occlusion_projection(stack, progress=stop)):
         with pytest.raises(Cancelled):
             call()
 
@@ -509,23 +510,23 @@ def test_warm_up_runs():
 @pytest.mark.parametrize("dtype", DTYPES)
 def test_output_dtypes(dtype):
     stack = random_stack(dtype, shape=(5, 4, 6))
-    assert P.brightest_point(stack).values.dtype == dtype
+    assert P.peak_projection(stack).peak.dtype == dtype
     for method in P.METHODS:
         result = P.depth_coded_projection(stack, method=method)
         for name in ("rgb", "depth_um", "brightness"):
             assert getattr(result, name).dtype == np.float32, (method, name)
         assert 0 <= result.brightness.min() and result.brightness.max() <= 1
         assert 0 <= result.rgb.min() and result.rgb.max() <= 1
-    assert P.blended_projection(stack).dtype == np.float32
+    assert P.occlusion_projection(stack).dtype == np.float32
 
 
 # --- errors -----------------------------------------------------------------------
 
 ERRORS = [
-    (lambda s: P.brightest_point(s[0]), "stack"),
-    (lambda s: P.brightest_point(np.zeros((3, 0, 4))), "stack"),
-    (lambda s: P.brightest_point(s.astype(complex)), "stack"),
-    (lambda s: P.brightest_point(s, axis=3), "axis"),
+    (lambda s: P.peak_projection(s[0]), "stack"),
+    (lambda s: P.peak_projection(np.zeros((3, 0, 4))), "stack"),
+    (lambda s: P.peak_projection(s.astype(complex)), "stack"),
+    (lambda s: P.peak_projection(s, axis=3), "axis"),
     (lambda s: P.depth_coded_projection(s, clim=(5, 5)), "clim"),
     (lambda s: P.depth_coded_projection(s, clim=(9, 2)), "clim"),
     (lambda s: P.depth_coded_projection(s, depth_range=(3.0, 1.0)), "depth_range"),
@@ -535,11 +536,11 @@ ERRORS = [
     (lambda s: P.depth_coded_projection(s, method="deepest"), "method"),
     (lambda s: P.depth_coded_projection(s, z_step=0), "z_step"),
     (lambda s: P.depth_coded_projection(s, gamma=-1), "gamma"),
-    (lambda s: P.blended_projection(s, density=-0.1), "density"),
-    (lambda s: P.blended_projection(s, view="side"), "view"),
-    (lambda s: P.blended_projection(s, clim=(1, 1)), "clim"),
-    (lambda s: P.blended_projection(s, cmap="nope"), "cmap"),
-    (lambda s: P.blended_projection(s, z_step=-1.0), "z_step"),
+    (lambda s: P.occlusion_projection(s, density=-0.1), "density"),
+    (lambda s: P.occlusion_projection(s, view="side"), "view"),
+    (lambda s: P.occlusion_projection(s, clim=(1, 1)), "clim"),
+    (lambda s: P.occlusion_projection(s, cmap="nope"), "cmap"),
+    (lambda s: P.occlusion_projection(s, z_step=-1.0), "z_step"),
 ]
 
 
@@ -555,7 +556,7 @@ def test_errors_name_the_parameter(call, name):
 # --- real data ----------------------------------------------------------------------
 
 @pytest.mark.realdata
-def test_brightest_point_on_real_golgi_stack():
+def test_peak_projection_on_real_golgi_stack():
     """Open dataset: Golgi, Airyscan, CC BY 4.0, (c) NEUBIAS (training-resources repository)."""
     path = REALDATA / "golgi_airyscan.ome.tif"
     if not path.exists():
@@ -563,8 +564,8 @@ def test_brightest_point_on_real_golgi_stack():
     tifffile = pytest.importorskip("tifffile")
     stack = tifffile.imread(path)
     assert stack.ndim == 3
-    result = P.brightest_point(stack)
-    np.testing.assert_array_equal(result.values, np.max(stack, axis=0))
-    np.testing.assert_array_equal(result.depth, np.argmax(stack, axis=0))
+    result = P.peak_projection(stack)
+    np.testing.assert_array_equal(result.peak, np.max(stack, axis=0))
+    np.testing.assert_array_equal(result.index, np.argmax(stack, axis=0))
     coded = P.depth_coded_projection(stack, z_step=0.3876)
     assert np.nanmax(coded.depth_um) <= 24 * 0.3876 + 1e-4

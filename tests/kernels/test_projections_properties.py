@@ -14,7 +14,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from hypothesis.extra.numpy import arrays
 
-from viewer_plugin.kernels import projections as P
+from viewer_plugin.kernels import projection as P
 
 SETTINGS = settings(max_examples=40, deadline=None)
 
@@ -33,14 +33,14 @@ float_stacks = arrays(
 @SETTINGS
 @given(stack=st.one_of(int_stacks, float_stacks))
 def test_maximum_bounds_every_slice(stack):
-    result = P.brightest_point(stack)
+    result = P.peak_projection(stack)
     finite = np.where(np.isnan(stack), -np.inf, stack) if stack.dtype.kind == "f" else stack
     has = ~np.all(np.isnan(stack), axis=0) if stack.dtype.kind == "f" else np.ones(stack.shape[1:], bool)
-    assert np.all(result.values[has] >= finite[:, has])
-    assert np.all((result.depth >= 0) & (result.depth < stack.shape[0]))
+    assert np.all(result.peak[has] >= finite[:, has])
+    assert np.all((result.index >= 0) & (result.index < stack.shape[0]))
     # the value sits at the reported depth
-    picked = np.take_along_axis(stack, result.depth[None].astype(np.intp), axis=0)[0]
-    np.testing.assert_array_equal(picked[has], result.values[has])
+    picked = np.take_along_axis(stack, result.index[None].astype(np.intp), axis=0)[0]
+    np.testing.assert_array_equal(picked[has], result.peak[has])
 
 
 @SETTINGS
@@ -57,7 +57,7 @@ def test_depths_in_range_and_colours_bounded(stack, method, z_step, gamma):
 @SETTINGS
 @given(stack=arrays(np.uint16, shapes), z_step=st.floats(0.1, 5.0))
 def test_vanishing_density_gives_nearly_nothing(stack, z_step):
-    out = P.blended_projection(stack, z_step=z_step, density=1e-9, clim=(0, 65535))
+    out = P.occlusion_projection(stack, z_step=z_step, density=1e-9, clim=(0, 65535))
     # C <= sum of a_i u_i <= density * z_step * n
     assert np.all(out <= 1e-9 * z_step * stack.shape[0] + 1e-12)
     assert np.all(out >= 0)
@@ -69,8 +69,8 @@ def test_vanishing_density_gives_nearly_nothing(stack, z_step):
 def test_thick_front_shows_front_value(front, back, n_front, n_back):
     stack = np.concatenate([np.full((n_front, 2, 2), front), np.full((n_back, 2, 2), back)])
     density = 1e4  # density * u * z_step >> 1 for every non-zero value
-    top = P.blended_projection(stack, density=density, clim=(0, 1))
-    bottom = P.blended_projection(stack, density=density, clim=(0, 1), view="bottom")
+    top = P.occlusion_projection(stack, density=density, clim=(0, 1))
+    bottom = P.occlusion_projection(stack, density=density, clim=(0, 1), view="bottom")
     np.testing.assert_allclose(top, front, rtol=1e-5)
     if back >= 0.05:
         np.testing.assert_allclose(bottom, back, rtol=1e-5)

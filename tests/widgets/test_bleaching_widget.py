@@ -69,7 +69,7 @@ def test_correct_adds_a_new_layer_with_the_same_geometry(make_napari_viewer, qtb
     before = layer.data.copy()
     widget = BleachingWidget(viewer)
     _run(qtbot, widget, widget.correct(start_thread=False))
-    out = viewer.layers[f"{layer.name} bleach-corrected"]
+    out = viewer.layers[f"{layer.name} bleaching-corrected"]
     assert out.data.dtype == np.float32 and out.data.shape == layer.data.shape
     np.testing.assert_allclose(out.scale, layer.scale)
     np.testing.assert_allclose(out.translate, layer.translate)

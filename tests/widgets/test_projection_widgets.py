@@ -1,6 +1,6 @@
 """The three projection dock widgets under Xvfb: new layers, geometry, untouched source, errors, cancel.
 
-Reference values: the brightest-point layers are compared with numpy's ``max`` and ``argmax``
+Reference values: the peak layers are compared with numpy's ``max`` and ``argmax``
 along the depth axis (numpy documentation: argmax returns the first occurrence on ties).
 """
 
@@ -53,7 +53,7 @@ def test_depth_colour_widget_adds_rgb_layer(make_napari_viewer, qtbot):
     assert widget.layer is layer
     assert widget.axis_combo.value == 0          # the axis labelled "z"
     assert widget.z_step.value == pytest.approx(2.0)  # from the layer scale
-    assert widget.method.choices[:3] == ("brightest", "weighted", "tinted")
+    assert widget.method.choices[:3] == ("peak", "weighted", "tinted")
     assert widget.cmap.choices[:5] == ("viridis", "cividis", "plasma", "inferno", "magma")
     _run(qtbot, widget)
     out = viewer.layers["cells depth colour"]
@@ -122,30 +122,30 @@ def test_depth_colour_bad_depth_range_is_a_notification(make_napari_viewer, erro
 
 def test_bad_z_step_is_a_notification(make_napari_viewer, errors):
     """A z-step override of 0 gives a notification naming the z-step, and no layer."""
-    from viewer_plugin.widgets.projection import BlendedWidget
+    from viewer_plugin.widgets.projection import OcclusionWidget
 
     viewer = make_napari_viewer(show=True)
     _add_stack(viewer)
-    widget = BlendedWidget(viewer)
+    widget = OcclusionWidget(viewer)
     widget.override_z.value = True
     widget.z_step.min = 0.0
     widget.z_step.value = 0.0
     assert widget.compute(start_thread=False) is None
     assert errors and "z-step" in errors[0]
-    assert not any(layer.name.startswith("cells blended") for layer in viewer.layers)
+    assert not any(layer.name.startswith("cells occlusion") for layer in viewer.layers)
 
 
-def test_brightest_point_layers_match_numpy(make_napari_viewer, qtbot):
-    from viewer_plugin.widgets.projection import BrightestPointWidget
+def test_peak_depth_layers_match_numpy(make_napari_viewer, qtbot):
+    from viewer_plugin.widgets.projection import PeakDepthWidget
 
     viewer = make_napari_viewer(show=True)
     data = _stack()
     before = data.copy()
     layer = _add_stack(viewer, data)
-    widget = BrightestPointWidget(viewer)
+    widget = PeakDepthWidget(viewer)
     _run(qtbot, widget)
-    top = viewer.layers["cells max"]
-    depth = viewer.layers["cells depth of max (\u00b5m)"]
+    top = viewer.layers["cells peak"]
+    depth = viewer.layers["cells peak depth (\u00b5m)"]
     # reference: numpy max / argmax (first occurrence on ties), times the z-step
     np.testing.assert_array_equal(top.data, data.max(axis=0))
     assert top.data.dtype == np.uint16
@@ -161,18 +161,18 @@ def test_brightest_point_layers_match_numpy(make_napari_viewer, qtbot):
     np.testing.assert_array_equal(layer.data, before)
 
 
-def test_brightest_point_depth_axis_from_labels(make_napari_viewer, qtbot):
+def test_peak_depth_depth_axis_from_labels(make_napari_viewer, qtbot):
     """A TZYX layer: depth is the axis labelled z, the time axis is kept."""
-    from viewer_plugin.widgets.projection import BrightestPointWidget
+    from viewer_plugin.widgets.projection import PeakDepthWidget
 
     viewer = make_napari_viewer(show=True)
     data = np.stack([_stack(seed=1), _stack(seed=2)])
     layer = viewer.add_image(data, name="series", scale=(30.0, 2.0, 0.5, 0.5),
                              axis_labels=("t", "z", "y", "x"))
-    widget = BrightestPointWidget(viewer)
+    widget = PeakDepthWidget(viewer)
     assert widget.layer is layer and widget.axis_combo.value == 1
     _run(qtbot, widget)
-    top = viewer.layers["series max"]
+    top = viewer.layers["series peak"]
     # numpy reference; the depth axis stays as one slice spanning the 12 x 2 um stack, so the
     # time axis lines up with the source's time axis in the viewer (not with its z axis)
     np.testing.assert_array_equal(top.data, data.max(axis=1, keepdims=True))
@@ -184,26 +184,26 @@ def test_brightest_point_depth_axis_from_labels(make_napari_viewer, qtbot):
         assert top.get_value((30.0, z_um, 0.5 * 20, 0.5 * 20), world=True) == data[1, :, 20, 20].max()
 
 
-def _blended_with_side_views(make_napari_viewer, qtbot, colour=None):
-    """Run the blended widget with side views on the test stack; returns its pieces."""
-    from viewer_plugin.widgets.projection import BlendedWidget
+def _occlusion_with_side_views(make_napari_viewer, qtbot, colour=None):
+    """Run the occlusion widget with side views on the test stack; returns its pieces."""
+    from viewer_plugin.widgets.projection import OcclusionWidget
 
     viewer = make_napari_viewer(show=True)
     data = _stack()
     before = data.copy()
     layer = _add_stack(viewer, data)
-    widget = BlendedWidget(viewer)
+    widget = OcclusionWidget(viewer)
     widget.side_views.value = True
     widget.colour.value = colour
     _run(qtbot, widget)
     return viewer, widget, layer, data, before
 
 
-def test_blended_widget_side_views_geometry(make_napari_viewer, qtbot):
-    viewer, _, layer, _, before = _blended_with_side_views(make_napari_viewer, qtbot)
-    top = viewer.layers["cells blended (top)"]
-    along_y = viewer.layers["cells blended side (along y)"]
-    along_x = viewer.layers["cells blended side (along x)"]
+def test_occlusion_widget_side_views_geometry(make_napari_viewer, qtbot):
+    viewer, _, layer, _, before = _occlusion_with_side_views(make_napari_viewer, qtbot)
+    top = viewer.layers["cells occlusion (top)"]
+    along_y = viewer.layers["cells occlusion side (along y)"]
+    along_x = viewer.layers["cells occlusion side (along x)"]
     assert top.data.shape == (40, 48) and top.data.dtype == np.float32
     assert along_y.data.shape == (12, 48)   # depth vertical, x across
     assert along_x.data.shape == (12, 40)   # depth vertical, y across
@@ -216,7 +216,7 @@ def test_blended_widget_side_views_geometry(make_napari_viewer, qtbot):
     np.testing.assert_array_equal(layer.data, before)
 
 
-def test_blended_widget_colour_side_views(make_napari_viewer, qtbot):
+def test_occlusion_widget_colour_side_views(make_napari_viewer, qtbot):
     """Side views of the depth-coloured rendering: grey side view x the colour of each row's depth.
 
     Reference: the kernel's own grey rendering along y and the matplotlib colour table
@@ -224,15 +224,15 @@ def test_blended_widget_colour_side_views(make_napari_viewer, qtbot):
     """
     import matplotlib
 
-    from viewer_plugin.kernels.projections import blended_projection
+    from viewer_plugin.kernels.projection import occlusion_projection
 
-    viewer, widget, layer, data, before = _blended_with_side_views(make_napari_viewer, qtbot,
+    viewer, widget, layer, data, before = _occlusion_with_side_views(make_napari_viewer, qtbot,
                                                                    colour="magma")
-    top = viewer.layers["cells blended (top)"]
-    along_y = viewer.layers["cells blended side (along y)"]
+    top = viewer.layers["cells occlusion (top)"]
+    along_y = viewer.layers["cells occlusion side (along y)"]
     assert top.rgb and along_y.rgb and along_y.data.shape == (12, 48, 3)
     clim = tuple(float(v) for v in layer.contrast_limits)
-    grey = blended_projection(data, z_step=0.5, density=widget._options(layer)["density"],
+    grey = occlusion_projection(data, z_step=0.5, density=widget._options(layer)["density"],
                               clim=clim, axis=1)  # (z, x): rows are depths
     colours = matplotlib.colormaps["magma"](np.arange(12) / 11)[:, :3]
     np.testing.assert_allclose(along_y.data, grey[..., None] * colours[:, None, :],
@@ -240,18 +240,18 @@ def test_blended_widget_colour_side_views(make_napari_viewer, qtbot):
     np.testing.assert_array_equal(layer.data, before)
 
 def test_cancel_stops_and_adds_nothing(make_napari_viewer, qtbot):
-    from viewer_plugin.widgets.projection import BlendedWidget
+    from viewer_plugin.widgets.projection import OcclusionWidget
 
     viewer = make_napari_viewer(show=True)
     _add_stack(viewer, _stack(shape=(24, 40, 48)))
-    widget = BlendedWidget(viewer)
+    widget = OcclusionWidget(viewer)
     worker = widget.compute(start_thread=False)
     assert widget.cancel_button.enabled and not widget.compute_button.enabled
     widget.cancel()  # before the first chunk: the first progress call raises Cancelled
     with qtbot.waitSignal(worker.finished, timeout=WAIT_MS):
         worker.start()
     qtbot.waitUntil(lambda: not widget.task.running, timeout=WAIT_MS)
-    assert not any("blended" in layer.name for layer in viewer.layers)
+    assert not any("occlusion" in layer.name for layer in viewer.layers)
     assert widget.compute_button.enabled and not widget.cancel_button.enabled
     assert widget.status.value.startswith("Cancelled")
 
@@ -288,10 +288,10 @@ def test_export_figure_in_background(make_napari_viewer, qtbot, tmp_path, errors
     assert "fig.pdf" in errors[-1] and widget.status.value.startswith("Export failed")
 
 def test_layer_list_refresh(make_napari_viewer):
-    from viewer_plugin.widgets.projection import BrightestPointWidget
+    from viewer_plugin.widgets.projection import PeakDepthWidget
 
     viewer = make_napari_viewer(show=True)
-    widget = BrightestPointWidget(viewer)
+    widget = PeakDepthWidget(viewer)
     assert widget.layer is None and not widget.compute_button.enabled
     viewer.add_image(np.zeros((8, 8)), name="flat")  # 2-D: not offered
     assert widget.layer is None
@@ -302,25 +302,25 @@ def test_layer_list_refresh(make_napari_viewer):
 
 
 def test_demo_fibre_slab_depth_colour(make_napari_viewer, qtbot):
-    """The demo stack end to end: the brightest-point depth map spans the slab's depth."""
+    """The demo stack end to end: the peak depth map spans the slab's depth."""
     demo = pytest.importorskip("viewer_plugin.demo")
-    from viewer_plugin.widgets.projection import BrightestPointWidget
+    from viewer_plugin.widgets.projection import PeakDepthWidget
 
     stack = demo.fibre_slab(seed=0, shape=(20, 64, 64))
     viewer = make_napari_viewer(show=True)
     layer = viewer.add_image(stack.data, name=stack.name, scale=stack.scale,
                              axis_labels=("z", "y", "x"))
     before = stack.data.copy()
-    widget = BrightestPointWidget(viewer)
+    widget = PeakDepthWidget(viewer)
     _run(qtbot, widget)
-    depth = viewer.layers[f"{stack.name} depth of max (\u00b5m)"]
+    depth = viewer.layers[f"{stack.name} peak depth (\u00b5m)"]
     np.testing.assert_allclose(depth.data, stack.data.argmax(axis=0) * stack.scale[0])  # numpy
     np.testing.assert_array_equal(layer.data, before)
 
 
 def test_kernel_error_becomes_notification(make_napari_viewer, qtbot, errors, monkeypatch):
     """A ParameterError raised inside the kernel (worker thread) is a notification, no layer."""
-    from viewer_plugin.kernels import ParameterError, projections
+    from viewer_plugin.kernels import ParameterError, projection as projections
     from viewer_plugin.widgets.projection import DepthColourWidget
 
     def broken(*args, **kwargs):
@@ -353,7 +353,7 @@ def test_widgets_open_from_the_plugin_menu(make_napari_viewer):
     """The manifest's display names build the three widgets (as Plugins > stackdepth does)."""
     viewer = make_napari_viewer(show=True)
     _add_stack(viewer)
-    for title in ("Depth colour projection", "Brightest-point projection", "Blended projection"):
+    for title in ("Depth colour projection", "Peak depth map", "Occlusion projection"):
         _dock, widget = viewer.window.add_plugin_dock_widget("stackdepth", title)
         assert widget.title == title and widget.layer is viewer.layers["cells"]
 
@@ -383,18 +383,18 @@ def test_real_cortex_depth_map(realdata, make_napari_viewer, qtbot):
     """Open data: cortex_cells_serial_twophoton.ome.tif (BSD 3-Clause, (c) 2020 Adam Tyson, UCL,
     brainglobe/cellfinder test data); 5 um z-steps. Reference: numpy argmax x z-step."""
     from viewer_plugin.io import read_stack
-    from viewer_plugin.widgets.projection import BrightestPointWidget
+    from viewer_plugin.widgets.projection import PeakDepthWidget
 
     stack = read_stack(realdata / "cortex_cells_serial_twophoton.ome.tif")
     data = np.asarray(stack.data)
     viewer = make_napari_viewer(show=True)
     layer = viewer.add_image(data, name="cortex", scale=stack.scale, axis_labels=("z", "y", "x"))
-    widget = BrightestPointWidget(viewer)
+    widget = PeakDepthWidget(viewer)
     assert widget.z_step.value == pytest.approx(5.0)
     _run(qtbot, widget)
-    depth = viewer.layers["cortex depth of max (\u00b5m)"]
+    depth = viewer.layers["cortex peak depth (\u00b5m)"]
     np.testing.assert_allclose(depth.data, data.argmax(axis=0) * 5.0)
-    np.testing.assert_array_equal(viewer.layers["cortex max"].data, data.max(axis=0))
+    np.testing.assert_array_equal(viewer.layers["cortex peak"].data, data.max(axis=0))
     np.testing.assert_array_equal(layer.data, np.asarray(read_stack(realdata /
                                   "cortex_cells_serial_twophoton.ome.tif").data))
 

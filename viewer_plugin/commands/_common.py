@@ -2,17 +2,13 @@
 
 from __future__ import annotations
 
-import json
-import math
 import os
 import sys
 import time
 from pathlib import Path
 from typing import Any
 
-import numpy as np
-
-from ..io._atomic import atomic_write
+from .._shared.jsonio import write_json
 
 #: Exit statuses (documented in ``stackdepth --help``).
 EXIT_OK = 0
@@ -49,41 +45,11 @@ def check_outputs(args: Any, options: tuple[str, ...] = ("output", "report", "pl
     if len(set(paths)) != len(paths):
         names = "/".join(f"--{o}" for o in options)
         raise CommandError(f"{names}: expected different files, got the same path twice")
-    target = out.get("output")
-    if target is not None and not target.name.lower().endswith((".ome.tif", ".ome.tiff")):
-        raise CommandError(f"--output: expected a .ome.tif file name, got {target.name}")
+    for option in ("output", "equalise"):
+        target = out.get(option)
+        if target is not None and not target.name.lower().endswith((".ome.tif", ".ome.tiff")):
+            raise CommandError(f"--{option}: expected a .ome.tif file name, got {target.name}")
     return out
-
-
-def _json_default(value: Any) -> Any:
-    if isinstance(value, np.ndarray):
-        return value.tolist()
-    if isinstance(value, (np.floating, np.integer, np.bool_)):
-        return value.item()
-    if isinstance(value, Path):
-        return str(value)
-    raise TypeError(f"cannot store {type(value).__name__} in a JSON report")
-
-
-def _finite(value: Any) -> Any:
-    """JSON has no inf/NaN: store them as null (documented in the reports)."""
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    if isinstance(value, dict):
-        return {k: _finite(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_finite(v) for v in value]
-    if isinstance(value, np.ndarray):
-        return _finite(value.tolist())
-    if isinstance(value, (np.floating,)):
-        return _finite(float(value))
-    return value
-
-
-def write_json(path: Path, payload: dict[str, Any]) -> Path:
-    """Write *payload* as indented JSON atomically (inf/NaN become null)."""
-    text = json.dumps(_finite(payload), indent=2, default=_json_default, allow_nan=False)
-    return atomic_write(Path(path), lambda tmp: tmp.write_text(text + "\n", encoding="utf-8"))
 
 
 class TerminalProgress:

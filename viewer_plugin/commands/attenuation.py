@@ -20,7 +20,7 @@ from typing import Any
 import numpy as np
 
 from .. import __version__
-from ..io._atomic import atomic_write
+from .._shared.atomic import atomic_write
 from ._common import (
     CommandError,
     TerminalProgress,
@@ -45,7 +45,7 @@ def register(sub: Any) -> None:
     parser.add_argument("--report", default=None, metavar="REPORT", help="write a JSON report")
     parser.add_argument("--plot", default=None, metavar="PLOT",
                         help="write a PNG of profile, model and gain (one per channel: _c<N>)")
-    parser.add_argument("--model", default="exponential", choices=("exponential", "smooth", "histogram"),
+    parser.add_argument("--model", default="exponential", choices=("exponential", "smooth", "quantile"),
                         help="depth model (default: exponential, Beer-Lambert)")
     parser.add_argument("--max-gain", type=float, default=10.0, metavar="G",
                         help="cap on the per-slice gain (default 10)")
@@ -94,7 +94,7 @@ def _channel_views(stack: Any, channel: int | None) -> tuple[list[int], Any, str
 
 def run(args: argparse.Namespace) -> int:
     from ..io import read_stack
-    from ..kernels._validate import check_number
+    from .._shared.validation import check_number
 
     outputs = check_outputs(args)
     axis = _axis_index(args.axis)
@@ -194,7 +194,7 @@ def _write_corrected(path: Path, stack: Any, data: Any, channels: list,
                      results: list[dict[str, Any]], args: argparse.Namespace) -> None:
     from ..io import write_ome_tiff
     from ..kernels import correct_attenuation
-    from ..kernels._validate import is_dask
+    from .._shared.validation import is_dask
     from ..kernels.attenuation import CAUTION
 
     corrected = []

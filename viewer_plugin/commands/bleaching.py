@@ -19,7 +19,7 @@ from pathlib import Path
 from typing import Any
 
 from .. import __version__
-from ..io._atomic import atomic_write
+from .._shared.atomic import atomic_write
 from ._common import (
     EXIT_OK,
     EXIT_OVER_TOLERANCE,
@@ -31,6 +31,8 @@ from ._common import (
 
 CAUTION = ("Corrected intensities are relative, not calibrated; correction amplifies the noise "
            "of late (faded) frames.")
+EQUALISE_NOTE = ("contrast equalised to frame 0 by histogram specification: for display and "
+                 "segmentation, not for measuring intensities")
 TOLERANCE_NOTE = "no published limit: the default 0.10 is common practice; set your own"
 
 
@@ -53,10 +55,14 @@ def register(sub: Any) -> None:
     parser.add_argument("--report", default=None, metavar="R.json", help="write a JSON report")
     parser.add_argument("--plot", default=None, metavar="P.png", help="write a PNG of the check")
     parser.add_argument("-o", "--output", default=None, metavar="CORRECTED",
-                        help="write the bleach-corrected series here (.ome.tif, float32)")
-    parser.add_argument("--method", choices=("fit", "ratio", "histogram"), default="fit",
-                        help="correction: divide by the fitted model (default), ratio to the "
-                        "first frame, or match the first frame's histogram")
+                        help="write the bleaching-corrected series here (.ome.tif, float32)")
+    parser.add_argument("--rescale", choices=("model", "measured"), default="model",
+                        help="how -o rescales each frame: divide by the fitted decay (model, "
+                        "default) or by the frame's measured foreground signal (measured)")
+    parser.add_argument("--equalise", default=None, metavar="OUT",
+                        help="also write a copy whose frames' contrast is equalised to frame 0 "
+                        "(histogram specification: for display and segmentation, not for "
+                        "intensities)")
     parser.add_argument("--reverse", default=None, metavar="SECOND_PASS",
                         help="second pass over the same stack, acquired deepest-first (stored "
                         "surface first): separate bleaching from attenuation")
@@ -81,10 +87,11 @@ def parse_tolerance(text: str) -> float:
 
 
 def _outputs(args: argparse.Namespace) -> dict[str, Path | None]:
-    out = check_outputs(args)
-    if out["output"] is not None and args.reverse is not None:
-        raise CommandError("--output: not available with --reverse; the two-pass mode only "
-                           "measures (correct attenuation with 'stackdepth attenuation')")
+    out = check_outputs(args, ("output", "report", "plot", "equalise"))
+    for option in ("output", "equalise"):
+        if out[option] is not None and args.reverse is not None:
+            raise CommandError(f"--{option}: not available with --reverse; the two-pass mode only "
+                               "measures (correct attenuation with 'stackdepth attenuation')")
     return out
 
 
@@ -143,7 +150,7 @@ def _series_axis(data: Any, axes: str, scale: tuple, wanted: str | None,
 
 def run(args: argparse.Namespace) -> int:
     from ..io import read_stack
-    from ..kernels._validate import check_number
+    from .._shared.validation import check_number
 
     outputs = _outputs(args)
     tolerance = parse_tolerance(args.tolerance)
@@ -168,6 +175,8 @@ def run(args: argparse.Namespace) -> int:
     report = _estimate(data, axis, kind, interval, tolerance)
     if outputs["output"] is not None:
         _write_corrected(outputs["output"], data, axes, scale, report, axis, args)
+    if outputs["equalise"] is not None:
+        _write_equalised(outputs["equalise"], data, axes, scale, axis, args)
     truth = _truth(stack)
     if outputs["plot"] is not None:
         _write_plot(outputs["plot"], report, truth)
@@ -175,7 +184,7 @@ def run(args: argparse.Namespace) -> int:
         payload = _payload(args, tolerance, {"axis": kind, "interval": interval,
                                              "interval_unit": "s" if kind == "t" else "um",
                                              "interval_from": interval_from,
-                                             "method": args.method if outputs["output"] else None})
+                                             "rescale": args.rescale if outputs["output"] else None})
         payload.update(report.to_dict())
         payload["caveat"] = report.caveat or None
         if truth:
@@ -221,13 +230,27 @@ def _write_corrected(path: Path, data: Any, axes: str, scale: tuple, report: Any
     from ..kernels import correct_bleaching
 
     with TerminalProgress("correcting") as progress:
-        corrected = correct_bleaching(data, report, method=args.method, axis=axis, progress=progress)
-    metadata = {"bleach_correction": {
-        "source": str(Path(args.input).resolve()), "method": args.method,
+        corrected = correct_bleaching(data, report, rescale=args.rescale, axis=axis, progress=progress)
+    metadata = {"bleaching_correction": {
+        "source": str(Path(args.input).resolve()), "rescale": args.rescale,
         "channel": args.channel, "rate_per_frame": report.rate_per_frame,
         "model": report.model, "offset": report.offset, "summary": report.summary,
         "caution": CAUTION, "stackdepth_version": __version__}}
     write_ome_tiff(path, corrected, axes=axes, scale=scale, metadata=metadata,
+                   overwrite=args.overwrite)
+
+
+def _write_equalised(path: Path, data: Any, axes: str, scale: tuple, axis: int,
+                     args: argparse.Namespace) -> None:
+    from ..io import write_ome_tiff
+    from ..kernels import equalise_to_reference
+
+    with TerminalProgress("equalising") as progress:
+        equalised = equalise_to_reference(data, reference=0, axis=axis, progress=progress)
+    metadata = {"contrast_equalisation": {
+        "source": str(Path(args.input).resolve()), "reference_frame": 0, "channel": args.channel,
+        "note": EQUALISE_NOTE, "stackdepth_version": __version__}}
+    write_ome_tiff(path, equalised, axes=axes, scale=scale, metadata=metadata,
                    overwrite=args.overwrite)
 
 

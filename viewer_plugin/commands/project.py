@@ -1,7 +1,7 @@
 """``stackdepth project INPUT -o OUTPUT``: a projection along depth, written as OME-TIFF.
 
-Methods: ``brightest`` / ``weighted`` / ``tinted`` (depth colour-coded RGB),
-``blended`` (emission-absorption, front to back) and ``max`` (maximum-intensity
+Methods: ``peak`` / ``weighted`` / ``tinted`` (depth colour-coded RGB),
+``occlusion`` (emission-absorption, front to back) and ``max`` (maximum-intensity
 projection in the input dtype). The z-step comes from the file's voxel size
 unless ``--z-step`` is given; the output keeps the xy pixel size. Time points
 are projected one by one; a file with several channels needs ``--channel``.
@@ -20,25 +20,25 @@ from ._common import CommandError, TerminalProgress, check_output_path
 
 logger = logging.getLogger(__name__)
 
-DEPTH_CODED = ("brightest", "weighted", "tinted")
-METHODS = DEPTH_CODED + ("blended", "max")
+DEPTH_CODED = ("peak", "weighted", "tinted")
+METHODS = DEPTH_CODED + ("occlusion", "max")
 
 
 def register(sub: Any) -> None:
     parser = sub.add_parser(
-        "project", help="project a z-stack along depth (depth colour, blended, max)",
+        "project", help="project a z-stack along depth (depth colour, occlusion, max)",
         description="Project a z-stack along depth and write the result as OME-TIFF with the xy "
-        "pixel size. brightest/weighted/tinted colour-code depth in um (RGB, 8 bits per colour); "
-        "blended composites front to back (emission-absorption); max is the maximum-intensity "
+        "pixel size. peak/weighted/tinted colour-code depth in um (RGB, 8 bits per colour); "
+        "occlusion composites front to back (emission-absorption); max is the maximum-intensity "
         "projection in the input dtype. Brightness is display contrast, not a calibrated "
         "intensity.")
     parser.add_argument("input", metavar="INPUT", help="OME-TIFF or TIFF z-stack")
     parser.add_argument("-o", "--output", required=True, metavar="OUTPUT",
                         help="output OME-TIFF (.ome.tif)")
-    parser.add_argument("--method", default="brightest", choices=METHODS,
-                        help="projection (default: brightest)")
+    parser.add_argument("--method", default="peak", choices=METHODS,
+                        help="projection (default: peak)")
     parser.add_argument("--cmap", default=None, metavar="NAME",
-                        help="matplotlib colour map for depth (default viridis; with blended: "
+                        help="matplotlib colour map for depth (default viridis; with occlusion: "
                              "colour each slice by its depth)")
     parser.add_argument("--depth-range", nargs=2, type=float, metavar=("D0", "D1"),
                         help="depths in um at the two ends of the colour map (default: whole stack)")
@@ -46,10 +46,10 @@ def register(sub: Any) -> None:
                         help="display limits in input units (default: 0.1 and 99.9 percentiles)")
     parser.add_argument("--gamma", type=float, default=1.0, help="brightness gamma (default 1)")
     parser.add_argument("--density", type=float, default=None, metavar="D",
-                        help="blended: extinction per um of a fully bright voxel "
+                        help="occlusion: extinction per um of a fully bright voxel "
                              "(default 10 / stack depth)")
     parser.add_argument("--view", default="top", choices=("top", "bottom"),
-                        help="blended: composite from the first (top) or last (bottom) slice")
+                        help="occlusion: composite from the first (top) or last (bottom) slice")
     parser.add_argument("--z-step", type=float, default=None, metavar="UM",
                         help="slice spacing in um (default: from the file's voxel size)")
     parser.add_argument("--channel", type=int, default=None, metavar="N",
@@ -63,12 +63,12 @@ def register(sub: Any) -> None:
 
 def _check_options(args: argparse.Namespace) -> None:
     """Options that do not fit the method: say so instead of ignoring them."""
-    if args.method != "blended":
+    if args.method != "occlusion":
         if args.density is not None:
-            raise CommandError("--density: only used with --method blended")
+            raise CommandError("--density: only used with --method occlusion")
         if args.view != "top":
-            raise CommandError("--view: only used with --method blended")
-    if args.method in ("blended", "max") and args.depth_range is not None:
+            raise CommandError("--view: only used with --method occlusion")
+    if args.method in ("occlusion", "max") and args.depth_range is not None:
         raise CommandError(f"--depth-range: not used with --method {args.method}")
     if args.method == "max":
         for name in ("cmap", "clim"):
@@ -117,13 +117,13 @@ def _select(stack: Any, channel: int | None) -> tuple[Any, str, tuple[float, ...
 
 
 def _project(data: Any, axes: str, z_step: float, args: argparse.Namespace, progress: Any) -> Any:
-    from ..kernels import projections as kp
+    from ..kernels import projection as kp
 
     z = axes.index("Z")
     if args.method == "max":
-        return kp.brightest_point(data, axis=z, progress=progress)
-    if args.method == "blended":
-        return kp.blended_projection(data, z_step=z_step, density=args.density, clim=args.clim,
+        return kp.peak_projection(data, axis=z, z_step=z_step, progress=progress)
+    if args.method == "occlusion":
+        return kp.occlusion_projection(data, z_step=z_step, density=args.density, clim=args.clim,
                                      view=args.view, cmap=args.cmap, axis=z, progress=progress)
     return kp.depth_coded_projection(data, z_step=z_step, method=args.method,
                                      cmap=args.cmap or "viridis", depth_range=args.depth_range,
@@ -131,7 +131,7 @@ def _project(data: Any, axes: str, z_step: float, args: argparse.Namespace, prog
 
 
 def _z_step(stack: Any, axes: str, scale: tuple[float, ...], args: argparse.Namespace) -> float:
-    from ..kernels._validate import check_number
+    from .._shared.validation import check_number
 
     if args.z_step is not None:
         return check_number(args.z_step, name="--z-step", low=0.0, low_open=True)
@@ -179,12 +179,12 @@ def run(args: argparse.Namespace) -> int:
 def _pixels(result: Any, method: str, axes: str, scale: tuple[float, ...]) -> tuple:
     """The array to write, its axes and scale, and the depth range (µm) of a depth code."""
     if method == "max":
-        return np.asarray(result.values), axes, scale, None
+        return np.asarray(result.peak), axes, scale, None
     if method in DEPTH_CODED:
         rgb = np.rint(np.clip(np.asarray(result.rgb), 0.0, 1.0) * 255.0).astype(np.uint8)
         return rgb, axes + "S", scale + (1.0,), tuple(float(v) for v in result.depth_range)
     image = np.asarray(result, dtype=np.float32)
-    if image.ndim == len(axes) + 1:  # blended with a colour map: RGB
+    if image.ndim == len(axes) + 1:  # occlusion with a colour map: RGB
         rgb = np.rint(np.clip(image, 0.0, 1.0) * 255.0).astype(np.uint8)
         return rgb, axes + "S", scale + (1.0,), None
     return image, axes, scale, None
@@ -204,9 +204,9 @@ def _parameters(args: argparse.Namespace, stack: Any, axes: str, scale: tuple[fl
         params.update({"cmap": args.cmap or "viridis", "depth_range_um": list(d_range),
                        "clim": args.clim, "clim_used": [float(v) for v in result.clim],
                        "gamma": args.gamma})
-    elif args.method == "blended":
+    elif args.method == "occlusion":
         n = stack.data.shape[stack.axes.index("Z")]
-        from ..kernels.projections import DEFAULT_OPTICAL_DEPTH
+        from ..kernels.projection import DEFAULT_OPTICAL_DEPTH
 
         params.update({"density_per_um": args.density if args.density is not None
                        else DEFAULT_OPTICAL_DEPTH / (n * z_step), "view": args.view,

@@ -11,8 +11,8 @@ from ._common import CommandError
 #: Display names of the widgets, as in napari.yaml, in dock order.
 WIDGETS = (
     "Depth colour projection",
-    "Brightest-point projection",
-    "Blended projection",
+    "Peak depth map",
+    "Occlusion projection",
     "Depth attenuation",
     "Bleaching check",
 )

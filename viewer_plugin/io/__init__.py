@@ -1,5 +1,5 @@
 """Reading and writing OME-TIFF and TIFF stacks (no GUI)."""
 
-from .ometiff import StackData, StackReadError, read_stack, write_ome_tiff
+from .ometiff import Stack, StackData, StackReadError, read_stack, write_ome_tiff
 
-__all__ = ["StackData", "StackReadError", "read_stack", "write_ome_tiff"]
+__all__ = ["Stack", "StackData", "StackReadError", "read_stack", "write_ome_tiff"]

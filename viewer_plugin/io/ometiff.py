@@ -16,22 +16,22 @@ import json
 import logging
 import os
 import xml.etree.ElementTree as ET
-from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Iterator
 
 import numpy as np
 import tifffile
 
-from ..kernels._validate import check_stack, fail, is_dask
-from ._atomic import atomic_write
+from .._shared.atomic import atomic_write
+from .._shared.jsonio import to_jsonable
+from .._shared.stack import AXES, Stack
+from .._shared.validation import check_stack, fail, is_dask
 
 logger = logging.getLogger(__name__)
 
-__all__ = ["StackData", "StackReadError", "read_stack", "write_ome_tiff", "NAMESPACE"]
+__all__ = ["Stack", "StackData", "StackReadError", "read_stack", "write_ome_tiff", "NAMESPACE"]
 
 NAMESPACE = "stackdepth/"
-AXES = "TCZYXS"
 #: Conversion of OME length units to micrometres.
 _LENGTH_UM = {"µm": 1.0, "um": 1.0, "\u03bcm": 1.0, "micron": 1.0, "nm": 1e-3, "mm": 1e3,
               "cm": 1e4, "m": 1e6, "pm": 1e-6, "Å": 1e-4}
@@ -44,43 +44,8 @@ class StackReadError(ValueError):
     """A file could not be read as an image stack (message names file and problem)."""
 
 
-@dataclass
-class StackData:
-    """An image read from a file.
-
-    Attributes
-    ----------
-    data : ndarray or dask array
-        Pixels, axes as in *axes* (channels included when present).
-    axes : str
-        One letter per axis of *data* from "TCZYXS" (S: RGB samples), e.g. "ZYX", "TZYX", "CZYX".
-    scale : tuple of float
-        Step per axis: um for Z/Y/X, seconds for T, 1 for C and S.
-    channel_names : list of str
-        One name per channel (empty without a C axis).
-    metadata : dict
-        Our key/value metadata (``metadata["truth"]`` for demo data), plus
-        ``"units"`` per axis.
-    path : Path or None
-        Where it came from.
-    """
-
-    data: Any
-    axes: str
-    scale: tuple[float, ...]
-    channel_names: list[str] = field(default_factory=list)
-    metadata: dict[str, Any] = field(default_factory=dict)
-    path: Path | None = None
-
-    @property
-    def units(self) -> tuple[str, ...]:
-        """Unit per axis ("µm", "s" or "")."""
-        return tuple({"T": "s", "Z": "µm", "Y": "µm", "X": "µm"}.get(a, "") for a in self.axes)
-
-    def axis(self, letter: str) -> int | None:
-        """Index of the axis *letter* (e.g. "Z"), or None when absent."""
-        index = self.axes.find(letter.upper())
-        return None if index < 0 else index
+#: The container :func:`read_stack` returns (the shared :class:`~viewer_plugin._shared.stack.Stack`).
+StackData = Stack
 
 
 # --------------------------------------------------------------------------- reading
@@ -172,7 +137,7 @@ def _read(path: Path, lazy: bool | None, complaints: list[str]) -> StackData:
                            path, len(channels), n_channels)
         channels = [f"channel {i}" for i in range(n_channels)]
     metadata = dict(info.get("annotations", {}))
-    return StackData(data, axes, scale, channels if n_channels else [], metadata, path)
+    return Stack(data, axes, scale, channels if n_channels else [], metadata, path)
 
 
 def _lazy(path: Path, series: Any) -> Any:
@@ -295,10 +260,10 @@ def _physical(element: ET.Element, name: str, units: dict[str, float], path: Pat
 
 
 def _plain_info(tif: tifffile.TiffFile, path: Path) -> dict[str, Any]:
-    """Voxel size of a plain (or ImageJ) TIFF from its resolution tags."""
+    """Voxel size of a plain TIFF: resolution tags, and ``unit``/``spacing``/``finterval`` entries of its image description."""
     info: dict[str, Any] = {"steps": {}, "channels": [], "annotations": {}}
     page = tif.pages.first
-    ij = tif.imagej_metadata or {}
+    ij = tif.imagej_metadata or {}  # tifffile's parse of the image description's key=value entries
     unit = str(ij.get("unit", "")).replace("\\u00B5", "µ").lower()
     resunit = page.tags.get("ResolutionUnit")
     resunit = int(resunit.value) if resunit is not None else 1
@@ -316,7 +281,7 @@ def _plain_info(tif: tifffile.TiffFile, path: Path) -> dict[str, Any]:
         try:
             info["steps"]["Z"] = float(ij["spacing"]) * per_unit
         except (TypeError, ValueError):
-            logger.warning("%s: ImageJ spacing %r is not a number", path, ij["spacing"])
+            logger.warning("%s: the z spacing %r in the image description is not a number", path, ij["spacing"])
     if "finterval" in ij:
         try:
             info["steps"]["T"] = float(ij["finterval"])
@@ -430,14 +395,6 @@ def _ome_metadata(axes: str, scale: tuple[float, ...], channel_names: list[str] 
         for key, value in metadata.items():
             items = value if isinstance(value, dict) else {"value": value}
             annotations.append({"Namespace": NAMESPACE + str(key),
-                                **{str(k): json.dumps(v, default=_json_default) for k, v in items.items()}})
+                                **{str(k): json.dumps(to_jsonable(v)) for k, v in items.items()}})
         ome["MapAnnotation"] = annotations
     return ome
-
-
-def _json_default(value: Any) -> Any:
-    if isinstance(value, np.ndarray):
-        return value.tolist()
-    if isinstance(value, (np.generic,)):
-        return value.item()
-    return str(value)

@@ -1,28 +1,39 @@
-"""Numerical kernels of stackdepth.
+"""Numerical kernels of stackdepth, one subpackage per feature.
 
-Pure numpy (optionally numba and dask); this package never imports napari,
-Qt or magicgui, so everything here runs headless, in scripts and on a
-dask.distributed cluster.
+* :mod:`.projection` -- peak, depth-coded and occlusion projections, the
+  depth legend;
+* :mod:`.attenuation` -- depth attenuation estimate and correction;
+* :mod:`.bleaching` -- bleaching check, correction and two-pass separation;
+* :mod:`.primitives` -- the statistics and chunking they share.
+
+Pure numpy (with numba loops and dask arrays); this package never imports
+napari, Qt or magicgui, so everything here runs headless, in scripts and
+notebooks. The public kernels are importable from here directly.
 """
 
-from ._validate import Cancelled, ParameterError
+from .._shared.progress import Cancelled
+from .._shared.validation import ParameterError
+from ._deprecated import blended_projection, brightest_point
 from .attenuation import AttenuationFit, AttenuationWarning, correct_attenuation, estimate_attenuation
 from .bleaching import (
     BleachingReport,
     TwoPassResult,
     correct_bleaching,
+    equalise_to_reference,
     estimate_bleaching,
     separate_bleaching,
 )
-from .legend import DepthLegend
-from .profiles import Background, background_level, slice_background
-from .projections import (
-    BrightestPoint,
+from .primitives import Background, background_level, slice_background
+from .projection import (
     DepthCodedProjection,
-    blended_projection,
-    brightest_point,
+    DepthLegend,
+    PeakProjection,
     depth_coded_projection,
+    depth_colours,
     depth_legend,
+    display_limits,
+    occlusion_projection,
+    peak_projection,
     warm_up,
 )
 
@@ -31,11 +42,11 @@ __all__ = [
     "AttenuationWarning",
     "Background",
     "BleachingReport",
-    "BrightestPoint",
     "Cancelled",
     "DepthCodedProjection",
     "DepthLegend",
     "ParameterError",
+    "PeakProjection",
     "TwoPassResult",
     "background_level",
     "blended_projection",
@@ -43,9 +54,14 @@ __all__ = [
     "correct_attenuation",
     "correct_bleaching",
     "depth_coded_projection",
+    "depth_colours",
     "depth_legend",
+    "display_limits",
+    "equalise_to_reference",
     "estimate_attenuation",
     "estimate_bleaching",
+    "occlusion_projection",
+    "peak_projection",
     "separate_bleaching",
     "slice_background",
     "warm_up",

@@ -15,7 +15,7 @@ from typing import TYPE_CHECKING, Any, Callable
 import numpy as np
 from magicgui.widgets import CheckBox, ComboBox, Container, FloatSpinBox, Label, PushButton
 
-from ..kernels._validate import Cancelled
+from .._shared.progress import Cancelled
 from ._common import (
     connect_layer_events,
     disconnect_layer_events,
@@ -45,7 +45,7 @@ def start_warm_up() -> None:
         _WARM_UP_STARTED.append(True)
 
     def run() -> None:
-        from ..kernels import projections
+        from ..kernels import projection as projections
 
         warm = getattr(projections, "warm_up", None)
         if warm is not None:
@@ -295,7 +295,7 @@ class ProjectionWidget(Container):
         if layer is None:
             show_error(f"{self.title}: no stack picked; open a z-stack first")
             return None
-        from ..kernels._validate import check_number
+        from .._shared.validation import check_number
 
         axis = int(self.axis_combo.value)
         try:

@@ -34,7 +34,7 @@ COLOUR_MAPS = (
 )
 
 METHODS = (
-    ("brightest point: depth of the maximum", "brightest"),
+    ("peak: depth of the strongest voxel", "peak"),
     ("weighted: intensity-weighted mean depth", "weighted"),
     ("tinted: slices tinted by depth, then maximum", "tinted"),
 )
@@ -75,7 +75,7 @@ class DepthColourWidget(ProjectionWidget):
 
     # ----------------------------------------------------------- dock
     def _add_options(self) -> None:
-        self.method = ComboBox(label="Method", choices=list(METHODS), value="brightest")
+        self.method = ComboBox(label="Method", choices=list(METHODS), value="peak")
         self.cmap = ComboBox(label="Colour map", choices=list(COLOUR_MAPS), value="viridis",
                              tooltip="The first five are perceptually uniform and readable with "
                                      "colour-vision deficiency; rainbow-like maps distort depth")
@@ -142,7 +142,7 @@ class DepthColourWidget(ProjectionWidget):
 
     # ----------------------------------------------------------- options
     def _options(self, layer: Any) -> dict[str, Any]:
-        from ..kernels._validate import check_interval
+        from .._shared.validation import check_interval
 
         depth_range = None
         if not self.whole_depth.value:
@@ -154,7 +154,7 @@ class DepthColourWidget(ProjectionWidget):
 
     def _job(self, data: Any, axis: int, z_step: float, options: dict[str, Any],
              progress: Callable[[int, int], None]) -> Any:
-        from ..kernels.projections import depth_coded_projection, depth_legend
+        from ..kernels.projection import depth_coded_projection, depth_legend
 
         result = depth_coded_projection(data, z_step=z_step, axis=axis, progress=progress, **options)
         return result, depth_legend(result)

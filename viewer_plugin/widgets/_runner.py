@@ -22,7 +22,7 @@ from napari.utils import progress as napari_progress
 from napari.utils import notifications
 from qtpy.QtCore import QObject, Signal
 
-from ..kernels._validate import Cancelled
+from .._shared.progress import Cancelled
 
 logger = logging.getLogger(__name__)
 

@@ -17,7 +17,7 @@ from typing import TYPE_CHECKING, Any, Callable
 import numpy as np
 from magicgui.widgets import CheckBox, ComboBox, Container, FloatSpinBox, Label, PushButton
 
-from ..kernels._validate import check_number, fail
+from .._shared.validation import check_number, fail
 from ._common import (
     connect_layer_events,
     disconnect_layer_events,
@@ -37,7 +37,7 @@ CAUTION_SHORT = ("Corrected intensities are relative, not calibrated, and deep s
                  "amplified noise. One stack cannot separate attenuation from bleaching. "
                  "The original layer is kept.")
 NO_MASK = "(none)"
-MODELS = ("exponential", "smooth", "histogram")
+MODELS = ("exponential", "smooth", "quantile")
 
 
 def default_depth_axis(layer: Any) -> int:
@@ -134,7 +134,7 @@ class AttenuationWidget(TaskWidgetMixin, Container):
         self.z_step.tooltip = "Slice spacing along the depth axis; taken from the layer scale"
         self.model = ComboBox(label="Model", choices=list(MODELS), value="exponential")
         self.model.tooltip = ("exponential: Beer-Lambert fit; smooth: follows any smooth profile; "
-                              "histogram: matches every slice's histogram to the first slice's")
+                              "quantile: maps every slice's quantiles onto the first slice's")
         self.max_gain = FloatSpinBox(label="Max gain", value=10.0, min=1.0, max=1e4, step=1.0)
         self.max_gain.tooltip = "Gains above this are capped: deep slices mostly gain noise"
         self.mask_combo = ComboBox(label="Mask (optional)", choices=self._mask_choices)

@@ -97,9 +97,8 @@ class BleachingWidget(TaskWidgetMixin, Container):
         self.tolerance = FloatSpinBox(label="Tolerance (% loss)", value=10.0, min=0.1, max=99.0,
                                       step=1.0, tooltip=TOLERANCE_NOTE)
         self.tolerance_note = wrapped(Label(value=TOLERANCE_NOTE))
-        self.method = ComboBox(label="Correction", choices=[
-            ("divide by the fitted model", "fit"), ("ratio to the first frame", "ratio"),
-            ("match the first frame's histogram", "histogram")], value="fit")
+        self.method = ComboBox(label="Rescale frames by", choices=[
+            ("fitted decay", "model"), ("measured signal", "measured")], value="model")
         self.forward_combo = ComboBox(label="Forward pass", choices=self._layer_choices)
         self.reverse_combo = ComboBox(label="Reverse pass", choices=self._layer_choices)
         self.two_pass_help = wrapped(Label(value=TWO_PASS_HELP))
@@ -249,7 +248,7 @@ class BleachingWidget(TaskWidgetMixin, Container):
         return layer, data, axis, kind, note
 
     def _options(self) -> dict[str, Any]:
-        from ..kernels._validate import check_number
+        from .._shared.validation import check_number
 
         return {
             "interval": check_number(float(self.interval.value), name="Interval", low=0,
@@ -284,7 +283,7 @@ class BleachingWidget(TaskWidgetMixin, Container):
         return self._start(job, show, start_thread)
 
     def correct(self, *_: Any, start_thread: bool = True) -> Any:
-        """Add a bleach-corrected copy of the picked layer; returns the napari worker."""
+        """Add a bleaching-corrected copy of the picked layer; returns the napari worker."""
         from ..kernels.bleaching import correct_bleaching, estimate_bleaching
 
         try:
@@ -304,7 +303,7 @@ class BleachingWidget(TaskWidgetMixin, Container):
         def job(progress: Callable[[int, int], None]) -> Any:
             report = cached or estimate_bleaching(data, axis=axis, axis_kind=kind,
                                                   progress=progress, **options)
-            return report, correct_bleaching(data, report, method=method, axis=axis,
+            return report, correct_bleaching(data, report, rescale=method, axis=axis,
                                              progress=progress)
 
         def show(result: Any) -> None:
@@ -317,10 +316,10 @@ class BleachingWidget(TaskWidgetMixin, Container):
             if getattr(layer, "axis_labels", None) is not None:
                 extra["axis_labels"] = tuple(str(a) for a in layer.axis_labels)
             self.corrected_layer = self.viewer.add_image(
-                corrected, name=f"{layer.name} bleach-corrected", **same_geometry(layer), **extra,
+                corrected, name=f"{layer.name} bleaching-corrected", **same_geometry(layer), **extra,
                 colormap=getattr(layer.colormap, "name", "gray"),
                 contrast_limits=tuple(float(v) for v in layer.contrast_limits),
-                metadata={"stackdepth": {"bleach_correction": method,
+                metadata={"stackdepth": {"bleaching_correction": method,
                                          "summary": report.summary,
                                          "note": CAUTION, "source": layer.name}})
 

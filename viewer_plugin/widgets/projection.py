@@ -1,7 +1,7 @@
-"""The three projection dock widgets: depth colour, brightest point, blended.
+"""The three projection dock widgets: depth colour, peak depth map, occlusion.
 
 They only translate between layers and the kernels in
-:mod:`viewer_plugin.kernels.projections`: every result is a new layer, the
+:mod:`viewer_plugin.kernels.projection`: every result is a new layer, the
 source layer and its data are never changed, and whole-stack work runs off
 the GUI thread through :class:`~viewer_plugin.widgets._runner.BackgroundTask`.
 """
@@ -16,21 +16,21 @@ from magicgui.widgets import CheckBox, ComboBox, FloatSpinBox, Label
 from ._proj_base import ProjectionWidget, span_depth
 from ._proj_colour import DepthColourWidget
 
-__all__ = ["BlendedWidget", "BrightestPointWidget", "DepthColourWidget"]
+__all__ = ["DepthColourWidget", "OcclusionWidget", "PeakDepthWidget"]
 
 #: Colour maps offered for depth maps: perceptually uniform first, rainbow-like last.
 DEPTH_MAP_COLOURS = ("viridis", "cividis", "plasma", "inferno", "magma", "turbo")
 
 
-class BrightestPointWidget(ProjectionWidget):
+class PeakDepthWidget(ProjectionWidget):
     """Maximum-intensity projection plus the depth (µm) of each maximum.
 
-    Adds two layers: ``"<source> max"`` (the input dtype) and
-    ``"<source> depth of max (µm)"`` (float32, µm below the first slice, with
+    Adds two layers: ``"<source> peak"`` (the input dtype) and
+    ``"<source> peak depth (µm)"`` (float32, µm below the first slice, with
     napari's colour bar), so hovering a pixel reads its depth in µm.
     """
 
-    title = "Brightest-point projection"
+    title = "Peak depth map"
 
     def _add_options(self) -> None:
         self.depth_cmap = ComboBox(label="Depth map colours", choices=list(DEPTH_MAP_COLOURS),
@@ -52,11 +52,11 @@ class BrightestPointWidget(ProjectionWidget):
 
     def _job(self, data: Any, axis: int, z_step: float, options: dict[str, Any],
              progress: Callable[[int, int], None]) -> Any:
-        from ..kernels.projections import brightest_point
+        from ..kernels.projection import peak_projection
 
-        result = brightest_point(data, axis=axis, progress=progress)
-        values = np.asarray(result.values)
-        depth_um = np.asarray(result.depth).astype(np.float32) * np.float32(z_step)
+        result = peak_projection(data, axis=axis, z_step=z_step, progress=progress)
+        values = np.asarray(result.peak)
+        depth_um = np.array(result.depth_um)
         if options["blank_below"] is not None:
             depth_um[values <= options["blank_below"]] = np.nan
         return values, depth_um
@@ -65,13 +65,13 @@ class BrightestPointWidget(ProjectionWidget):
         values, depth_um = result
         deepest = max(float(z_step) * (layer.data.shape[axis] - 1), float(z_step))
         lo, hi = options["contrast_limits"]
-        self.max_layer = self.add_result(values, layer, axis, name=f"{layer.name} max",
+        self.max_layer = self.add_result(values, layer, axis, name=f"{layer.name} peak",
                                          colormap=options["colormap"],
                                          contrast_limits=(lo, hi) if hi > lo else None)
         self.depth_layer = self.add_result(
-            depth_um, layer, axis, name=f"{layer.name} depth of max (\u00b5m)",
+            depth_um, layer, axis, name=f"{layer.name} peak depth (\u00b5m)",
             colormap=options["cmap"], contrast_limits=(0.0, deepest),
-            metadata={"stackdepth": {"quantity": "depth of the brightest voxel", "unit": "\u00b5m",
+            metadata={"stackdepth": {"quantity": "depth of the strongest voxel", "unit": "\u00b5m",
                                      "z_step_um": z_step, "depth_axis": axis,
                                      "origin": "first slice = 0 \u00b5m"}})
         self.depth_layer.colorbar.visible = True
@@ -79,7 +79,7 @@ class BrightestPointWidget(ProjectionWidget):
                              f"(0\u2013{deepest:g} \u00b5m)")
 
 
-class BlendedWidget(ProjectionWidget):
+class OcclusionWidget(ProjectionWidget):
     """Emission–absorption (front-to-back 'over') projection, plus optional side views.
 
     Nearer structures partly hide deeper ones. Side views project along y and
@@ -87,7 +87,7 @@ class BlendedWidget(ProjectionWidget):
     geometrically right, and they are placed below the top view.
     """
 
-    title = "Blended projection"
+    title = "Occlusion projection"
 
     def _add_options(self) -> None:
         self.auto_density = CheckBox(text="Automatic density (from the stack's depth)", value=True)
@@ -105,13 +105,13 @@ class BlendedWidget(ProjectionWidget):
             tooltip="Grey, or each slice emits the colour of its depth (top and side views)")
         self.side_views = CheckBox(text="Side views along y and along x", value=False)
         self.note = Label(value="A rendering for looking, not for measuring: "
-                                "blended brightness is not an intensity.")
+                                "its brightness is not an intensity.")
         self.extend([self.auto_density, self.density, self.view, self.auto_contrast,
                      self.colour, self.side_views, self.note])
         self.auto_density.changed.connect(lambda v: setattr(self.density, "enabled", not v))
 
     def _options(self, layer: Any) -> dict[str, Any]:
-        from ..kernels._validate import check_number
+        from .._shared.validation import check_number
 
         density = None
         if not self.auto_density.value:
@@ -119,7 +119,7 @@ class BlendedWidget(ProjectionWidget):
         clim = None if self.auto_contrast.value else tuple(float(v) for v in layer.contrast_limits)
         pixel = (float(layer.scale[-2]), float(layer.scale[-1]))
         if density is None:  # the kernel's default for the depth axis, reused for the side views
-            from ..kernels.projections import DEFAULT_OPTICAL_DEPTH
+            from ..kernels.projection import DEFAULT_OPTICAL_DEPTH
 
             axis = int(self.axis_combo.value)
             density = DEFAULT_OPTICAL_DEPTH / (layer.data.shape[axis] * self.current_z_step())
@@ -128,7 +128,7 @@ class BlendedWidget(ProjectionWidget):
 
     def _job(self, data: Any, axis: int, z_step: float, options: dict[str, Any],
              progress: Callable[[int, int], None]) -> Any:
-        from ..kernels.projections import blended_projection, depth_colours, display_limits
+        from ..kernels.projection import depth_colours, display_limits, occlusion_projection
 
         passes = 3 if options["side_views"] else 1
 
@@ -139,7 +139,7 @@ class BlendedWidget(ProjectionWidget):
         if clim is None and options["side_views"]:  # one contrast for all three views
             clim = display_limits(data, axis=axis)
         common = {"density": options["density"], "clim": clim}
-        top = blended_projection(data, z_step=z_step, view=options["view"], axis=axis,
+        top = occlusion_projection(data, z_step=z_step, view=options["view"], axis=axis,
                                  cmap=options["cmap"], progress=part(0), **common)
         sides = []
         if options["side_views"]:
@@ -151,7 +151,7 @@ class BlendedWidget(ProjectionWidget):
                 colours = colours.astype(np.float32)[:, None, :]
             for k, side_axis in enumerate(others, start=1):
                 step = options["pixel"][k - 1]
-                view = blended_projection(data, z_step=step, view="top", axis=side_axis,
+                view = occlusion_projection(data, z_step=step, view="top", axis=side_axis,
                                           progress=part(k), **common)
                 depth_pos = axis if axis < side_axis else axis - 1
                 view = np.moveaxis(np.asarray(view), depth_pos, -2)
@@ -160,7 +160,7 @@ class BlendedWidget(ProjectionWidget):
 
     def _show(self, layer: Any, axis: int, z_step: float, options: dict[str, Any], result: Any) -> None:
         top, sides = result
-        name = f"{layer.name} blended ({options['view']})"
+        name = f"{layer.name} occlusion ({options['view']})"
         meta = {"stackdepth": {"density_per_um": options["density"], "view": options["view"],
                                "clim": options["clim"], "z_step_um": z_step,
                                "note": "a rendering, not a measurement"}}
@@ -211,5 +211,5 @@ class BlendedWidget(ProjectionWidget):
             geometry["units"] = [str(layer.units[i]) for i in (*lead, axis, across)]
         if lead:  # keep time/channel axes lined up with the source (see span_depth)
             view, geometry = span_depth(view, layer, len(lead), geometry)
-        return self.viewer.add_image(view, name=f"{layer.name} blended side (along {along})",
+        return self.viewer.add_image(view, name=f"{layer.name} occlusion side (along {along})",
                                      **display, **geometry)

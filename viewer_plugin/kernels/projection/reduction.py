@@ -4,13 +4,13 @@ Each projection is a chunk -> combine -> aggregate reduction (the pattern of
 ``dask.array.reductions``):
 
 * *chunk*: fold one z-chunk into a partial result (compiled, in
-  :mod:`._numba_proj`; the kernels fold straight into the running partial,
+  :mod:`._compiled`; the kernels fold straight into the running partial,
   which is the chunk step and the combine step fused);
 * *combine*: merge two partial results of adjacent depth ranges -- the pure
-  functions :func:`combine_brightest`, :func:`combine_weighted`,
+  functions :func:`combine_peak`, :func:`combine_weighted`,
   :func:`combine_tinted` and :func:`over` below (associative, so partials of
   z-chunks can be merged in any grouping, in depth order);
-* *aggregate*: turn the final partial into the result (in :mod:`.projections`).
+* *aggregate*: turn the final partial into the result (in each projection's module).
 
 The same driver (:func:`fold_chunks`) walks a numpy array or the z-chunks of a
 dask array (each chunk is computed, folded, dropped).
@@ -18,34 +18,27 @@ dask array (each chunk is computed, folded, dropped).
 
 from __future__ import annotations
 
-import math
-from typing import Any, Callable, Iterator
+from typing import Any, Callable
 
 import numpy as np
 
-from ._chunks import depth_chunks
-from ._validate import fail, is_dask, report_progress
+from ..._shared.progress import report_progress
+from ..._shared.validation import is_dask
+from ..primitives.chunks import depth_chunks
 
 __all__ = [
     "kernel_dtype",
     "fold_chunks",
-    "combine_brightest",
+    "combine_peak",
     "combine_weighted",
     "combine_tinted",
     "over",
-    "estimate_clim",
-    "percentiles_from_sample",
-    "resolve_lut",
-    "lut_index",
 ]
 
 #: z-chunk size (input bytes) for numpy inputs the kernels read in place.
 CHUNK_BYTES = 64 * 2**20
 #: z-chunk size (converted bytes) when chunks must be copied (dtype or layout).
 COPY_CHUNK_BYTES = 8 * 2**20
-#: Samples used to estimate percentiles (integers / floating point).
-SAMPLE_INT = 2**20
-SAMPLE_FLOAT = 2**18
 
 _NATIVE = (np.dtype(np.uint8), np.dtype(np.uint16), np.dtype(np.float32), np.dtype(np.float64))
 
@@ -156,7 +149,7 @@ def fold_chunks(
 
 # --- combine: merge the partial results of two adjacent depth ranges ---------
 
-def combine_brightest(first: tuple, second: tuple) -> tuple:
+def combine_peak(first: tuple, second: tuple) -> tuple:
     """Merge (values, index) partials; *first* covers the shallower slices.
 
     The second wins only where it holds a number and is strictly brighter
@@ -178,8 +171,8 @@ def combine_weighted(first: tuple, second: tuple) -> tuple:
 
 
 def combine_tinted(first: tuple, second: tuple) -> tuple:
-    """Merge (values, index, tint) partials: brightest point + channel max."""
-    values, index = combine_brightest(first[:2], second[:2])
+    """Merge (values, index, tint) partials: peak + channel max."""
+    values, index = combine_peak(first[:2], second[:2])
     return values, index, np.maximum(first[2], second[2])
 
 
@@ -193,126 +186,3 @@ def over(front: tuple, back: tuple) -> tuple:
     c1, t1 = front
     c2, t2 = back
     return c1 + t1 * c2, t1 * t2
-
-
-# --- display limits --------------------------------------------------------
-
-def _sample(v: Any, budget: int) -> np.ndarray:
-    """A strided subsample of about *budget* values (whole rows of pixels)."""
-    n, rows = int(v.shape[0]), int(v.shape[-2])
-    need = max(1, math.ceil(int(np.prod(v.shape, dtype=np.int64)) / budget))
-    step_rows = min(rows, need)
-    step_z = min(n, max(1, math.ceil(need / step_rows)))
-    part = v[step_z // 2 :: step_z, ..., step_rows // 2 :: step_rows, :]
-    if is_dask(part):
-        part = part.compute()
-    return np.asarray(part).ravel()
-
-
-def percentiles_from_sample(sample: np.ndarray, q: tuple[float, float]) -> tuple[float, float]:
-    """Percentiles *q* of *sample* (numpy's "linear" rule), NaN/inf ignored.
-
-    8/16-bit integers go through a histogram (exact, fast); an empty sample
-    gives (0, 1).
-    """
-    sample = np.asarray(sample)
-    if sample.dtype == np.bool_:
-        sample = sample.view(np.uint8)
-    if sample.dtype.kind == "u" and sample.dtype.itemsize <= 2 and sample.size:
-        cum = np.cumsum(np.bincount(sample.ravel()))
-        m = int(cum[-1])
-        out = []
-        for p in q:
-            pos = p / 100.0 * (m - 1)
-            i = int(math.floor(pos))
-            lo = int(np.searchsorted(cum, i, side="right"))
-            hi = int(np.searchsorted(cum, min(i + 1, m - 1), side="right"))
-            out.append(lo + (pos - i) * (hi - lo))
-        return float(out[0]), float(out[1])
-    values = sample.astype(np.float64, copy=False).ravel()
-    values = values[np.isfinite(values)]
-    if values.size == 0:
-        return 0.0, 1.0
-    low, high = np.percentile(values, q)
-    return float(low), float(high)
-
-
-def estimate_clim(v: Any, q: tuple[float, float] = (0.1, 99.9)) -> tuple[float, float]:
-    """Display limits from percentiles of a strided subsample of the stack.
-
-    A constant stack (``high <= low``) gets ``high = low + 1`` for integer
-    data (``low + 1e-6 * max(1, |low|)`` for floats): nothing in it then
-    counts as signal.
-    """
-    kind = np.dtype(v.dtype).kind
-    budget = SAMPLE_INT if kind in "uib" else SAMPLE_FLOAT
-    low, high = percentiles_from_sample(_sample(v, budget), q)
-    if high <= low:
-        high = low + (1.0 if kind in "uib" else 1e-6 * max(1.0, abs(low)))
-    return low, high
-
-
-def background_floor(v: Any, n_sigma: float = 3.0) -> float:
-    """Background level + *n_sigma* spreads, from a strided subsample.
-
-    Uses :func:`.profiles.background_level` (sigma-clipped mean) on about
-    2.6e5 values; the default lower limit of weighted depth codes.
-    """
-    from .profiles import background_level
-
-    sample = _sample(v, SAMPLE_FLOAT).astype(np.float64)
-    sample = sample[np.isfinite(sample)]
-    if sample.size == 0:
-        return 0.0
-    bg = background_level(sample[None, :], step=1, n_sigma=n_sigma)
-    return float(bg.level + n_sigma * bg.sigma)
-
-
-# --- colour tables ---------------------------------------------------------
-
-def resolve_lut(cmap: Any, *, name: str = "cmap") -> np.ndarray:
-    """An (N, 3) float64 colour table from a matplotlib name, Colormap or array.
-
-    A matplotlib colormap gives its own N entries, ``cmap(arange(N))[:, :3]``,
-    so that :func:`lut_index` reproduces ``cmap(t)`` exactly.
-    """
-    if isinstance(cmap, str):
-        import matplotlib
-
-        try:
-            cmap = matplotlib.colormaps[cmap]
-        except KeyError:
-            fail(name, "a matplotlib colormap name such as 'viridis' or an (N, 3) array", cmap)
-    if hasattr(cmap, "N") and callable(cmap):
-        return np.asarray(cmap(np.arange(int(cmap.N)))[:, :3], dtype=np.float64)
-    try:
-        table = np.asarray(cmap, dtype=np.float64)
-    except (TypeError, ValueError):
-        fail(name, "a matplotlib colormap name or an (N, 3) array", cmap)
-    if table.ndim != 2 or table.shape[1] != 3 or table.shape[0] < 1:
-        fail(name, "a matplotlib colormap name or an (N, 3) array", table)
-    if not np.all(np.isfinite(table)) or table.min() < 0 or table.max() > 1:
-        fail(name, "colour values in [0, 1]", f"<values from {np.nanmin(table)} to {np.nanmax(table)}>")
-    return table.copy()
-
-
-def lut_index(t: Any, n: int) -> np.ndarray:
-    """Colour-table index of positions *t* (clipped to [0, 1]), as matplotlib.
-
-    ``floor(t * n)``, with t == 1 mapped to the last entry.
-    """
-    t = np.clip(np.asarray(t, dtype=np.float64), 0.0, 1.0)
-    return np.minimum((t * n).astype(np.int64), n - 1)
-
-
-def slice_colours(lut: np.ndarray, n: int, z_step: float, depth_range: tuple) -> np.ndarray:
-    """Colour of every slice (its depth ``z * z_step`` mapped through *lut*)."""
-    d0, d1 = depth_range
-    t = (np.arange(n, dtype=np.float64) * z_step - d0) / (d1 - d0)
-    return np.ascontiguousarray(lut[lut_index(t, lut.shape[0])])
-
-
-def chunk_iter(n: int, step: int) -> Iterator[tuple[int, int]]:
-    """(start, stop) pairs of length *step* covering range(n) (test helper)."""
-    for start in range(0, n, step):
-        yield start, min(n, start + step)

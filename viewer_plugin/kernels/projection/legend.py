@@ -13,8 +13,8 @@ from typing import Any
 
 import numpy as np
 
-from ._proj_combine import lut_index, resolve_lut
-from ._validate import check_choice, check_int, check_interval, fail
+from ..._shared.validation import check_choice, check_int, check_interval, fail
+from .colour import lut_index, resolve_lut
 
 __all__ = ["DepthLegend", "depth_legend", "nice_ticks", "ORIENTATIONS"]
 

@@ -1,64 +1,34 @@
-"""Photobleaching: check a series for fading, correct it, or separate it from attenuation.
+"""Photobleaching check: how much the foreground signal faded along the acquisition order.
 
-``estimate_bleaching``  how much the foreground signal faded along the acquisition
-                        order, from a first-order decay model, and a verdict
-                        against a tolerance.
-``correct_bleaching``   a new float32 series with the fading divided out.
-``separate_bleaching``  bleaching rate per exposure and attenuation length from two
-                        passes over the same stack (the second deepest-first).
+``estimate_bleaching`` fits a first-order decay (or, when the F-test finds it
+significantly better, a plateau or a second component) to the per-frame
+foreground signal and compares the loss with a tolerance.
 
-Corrected intensities are relative, not calibrated, and a correction amplifies
-the noise of late (faded) frames. One z-stack alone cannot tell bleaching from
-depth attenuation.
+One z-stack alone cannot tell bleaching from depth attenuation (see
+:mod:`.two_pass`).
 """
 
 from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import Any, Callable
+from typing import Any
 
 import numpy as np
-from scipy import stats
 
-from . import _bleach_correct, _bleach_fit
-from ._bleach_measure import masked_profile, per_slice_masks, reference_mask, sample_background
-from ._bleach_text import DEPTH_CAVEAT, TWO_PASS_CAVEAT, bleaching_summary, two_pass_summary
-from ._validate import (
-    check_choice,
-    check_mask,
-    check_number,
-    check_stack,
-    depth_first,
-    fail,
-    report_progress,
-)
+from ..._shared.progress import Progress, report_progress
+from ..._shared.validation import check_choice, check_mask, check_number, check_stack, depth_first, fail
+from . import models
+from ._common import frozen, frozen_bool, r_squared
+from .measure import masked_profile, reference_mask, sample_background
+from .text import DEPTH_CAVEAT, bleaching_summary
 
-__all__ = [
-    "BleachingReport",
-    "TwoPassResult",
-    "estimate_bleaching",
-    "correct_bleaching",
-    "separate_bleaching",
-]
+__all__ = ["BleachingReport", "estimate_bleaching", "MIN_CONTRAST"]
 
-ProgressCallback = Callable[[int, int], None]
 _NAN_PAIR = (math.nan, math.nan)
 #: Foreground contrast (in background standard deviations) below which a series
 #: counts as all background.
 MIN_CONTRAST = 1.5
-
-
-def _frozen(values: np.ndarray) -> np.ndarray:
-    out = np.array(values, dtype=np.float64)
-    out.setflags(write=False)
-    return out
-
-
-def _frozen_bool(values: np.ndarray) -> np.ndarray:
-    out = np.array(values, dtype=bool)
-    out.setflags(write=False)
-    return out
 
 
 @dataclass(frozen=True)
@@ -163,73 +133,7 @@ class BleachingReport:
         return out
 
 
-@dataclass(frozen=True)
-class TwoPassResult:
-    """Result of :func:`separate_bleaching`.
-
-    Attributes
-    ----------
-    rate_per_exposure, rate_interval : float, tuple of float
-        k per slice exposure and its 95 % confidence interval.
-    length_um, length_interval : float, tuple of float
-        Attenuation length ℓ in µm (I ∝ exp(-z/ℓ)) and its 95 % interval;
-        ``inf`` when no decay with depth is left.
-    r_squared_rate, r_squared_length : float
-        Of the log-ratio fit and of the bleaching-free depth fit.
-    fraction_lost : float
-        Signal the forward pass lost to bleaching by its last slice.
-    forward_profile, reverse_profile : ndarray of float64
-        Mean foreground signal per slice (slice order, background subtracted).
-    log_ratio : ndarray of float64
-        ``ln(reverse / forward)`` per slice (NaN where not positive).
-    exposures : ndarray of float64
-        ``2N - 1 - 2i``: extra exposures the reverse pass had at slice *i*.
-    unbleached_profile : ndarray of float64
-        Forward profile divided by ``(1 - k)**i``.
-    offset : float
-    n_slices : int
-    z_step : float
-    caveat, summary : str
-    """
-
-    rate_per_exposure: float
-    rate_interval: tuple[float, float]
-    length_um: float
-    length_interval: tuple[float, float]
-    r_squared_rate: float
-    r_squared_length: float
-    fraction_lost: float
-    forward_profile: np.ndarray = field(repr=False)
-    reverse_profile: np.ndarray = field(repr=False)
-    log_ratio: np.ndarray = field(repr=False)
-    exposures: np.ndarray = field(repr=False)
-    unbleached_profile: np.ndarray = field(repr=False)
-    offset: float
-    n_slices: int
-    z_step: float
-    caveat: str
-    summary: str
-
-    @property
-    def depths(self) -> np.ndarray:
-        """Depth of each slice in µm (slice index x z_step)."""
-        return np.arange(self.n_slices, dtype=np.float64) * self.z_step
-
-    def to_dict(self) -> dict[str, Any]:
-        """All fields as plain Python values, for JSON reports."""
-        out = {name: getattr(self, name) for name in self.__dataclass_fields__}
-        for name in ("forward_profile", "reverse_profile", "log_ratio", "exposures",
-                     "unbleached_profile"):
-            out[name] = getattr(self, name).tolist()
-        return out
-
-
-def _r_squared(y: np.ndarray, rss: float) -> float:
-    tss = float(np.sum((y - y.mean()) ** 2))
-    return 1.0 - rss / tss if tss > 0 else math.nan
-
-
-def _components(fit: _bleach_fit.ModelFit) -> tuple[tuple[tuple[float, float], ...], float]:
+def _components(fit: models.ModelFit) -> tuple[tuple[tuple[float, float], ...], float]:
     """(share, per-frame rate) of each decaying part, and the plateau share."""
     p = fit.params
     rate = lambda lam: float(-math.expm1(-lam))  # noqa: E731
@@ -253,14 +157,14 @@ def _lost_interval(rate_ci: tuple[float, float], n: int) -> tuple[float, float]:
 def _constant_report(n: int, level: float, interval: float, tolerance: float,
                      axis_kind: str) -> BleachingReport:
     """The report of a constant series: nothing fades."""
-    zeros = _frozen(np.zeros(n))
+    zeros = frozen(np.zeros(n))
     noun = "time points" if axis_kind == "time" else "slices"
     return BleachingReport(
         rate_per_frame=0.0, rate_interval=(0.0, 0.0), half_life=math.inf, fraction_lost=0.0,
         fraction_lost_interval=(0.0, 0.0), exceeds_tolerance=False, tolerance=tolerance,
         r_squared=math.nan, model="none", model_choice="constant input: no model fitted",
         components=(), plateau=0.0, profile=zeros, model_profile=zeros,
-        used=_frozen_bool(np.ones(n, dtype=bool)), offset=level,
+        used=frozen_bool(np.ones(n, dtype=bool)), offset=level,
         background_sigma=0.0, foreground_fraction=0.0, n_frames=n, interval=interval,
         axis_kind=axis_kind, caveat=DEPTH_CAVEAT if axis_kind == "depth" else "",
         summary=f"The series is constant over {n} {noun}: no change of signal, no bleaching.",
@@ -272,34 +176,34 @@ def _fit_report(signal: np.ndarray, used: np.ndarray, *, interval: float, tolera
     n = signal.size
     t = np.arange(n, dtype=np.float64)
     n_used = int(np.count_nonzero(used))
-    fits = _bleach_fit.fit_models(t[used], signal[used])
+    fits = models.fit_models(t[used], signal[used])
     if "single" not in fits:
         fail("series", "a foreground signal a decay can be fitted to", "<a profile that no fit converged on>")
-    best, why = _bleach_fit.select_model(fits, n_used)
+    best, why = models.select_model(fits, n_used)
     if n_used < n:
         why += f"; {n - n_used} slices without a clear foreground left out of the fit"
     model = best.predict(t)
-    rate = _bleach_fit.effective_rate(best, n)
-    rate_ci = _bleach_fit.rate_interval(best, n, n_points=n_used)
+    rate = models.effective_rate(best, n)
+    rate_ci = models.rate_interval(best, n, n_points=n_used)
     lost = 1.0 - model[-1] / model[0] if model[0] > 0 else math.nan
     lost_ci = _lost_interval(rate_ci, n)
     significant = not (math.isfinite(lost_ci[0]) and lost_ci[0] <= 0.0 <= lost_ci[1])
     components, plateau = _components(best)
-    half = _bleach_fit.half_life_frames(best) * interval
+    half = models.half_life_frames(best) * interval
     exceeds = bool(math.isfinite(lost) and lost > tolerance)
     return BleachingReport(
         rate_per_frame=rate, rate_interval=rate_ci, half_life=max(0.0, half), fraction_lost=lost,
         fraction_lost_interval=lost_ci, exceeds_tolerance=exceeds, tolerance=tolerance,
-        r_squared=_r_squared(signal[used], best.rss), model=best.name, model_choice=why,
-        components=components, plateau=plateau, profile=_frozen(signal),
-        model_profile=_frozen(model), used=_frozen_bool(used), offset=offset,
+        r_squared=r_squared(signal[used], best.rss), model=best.name, model_choice=why,
+        components=components, plateau=plateau, profile=frozen(signal),
+        model_profile=frozen(model), used=frozen_bool(used), offset=offset,
         background_sigma=sigma,
         foreground_fraction=fraction, n_frames=n, interval=interval, axis_kind=axis_kind,
         caveat=DEPTH_CAVEAT if axis_kind == "depth" else "",
         summary=bleaching_summary(fraction_lost=lost, half_life=half, n_frames=n,
                                   tolerance=tolerance, axis_kind=axis_kind,
                                   significant=significant or exceeds,
-                                  r_squared=_r_squared(signal[used], best.rss)),
+                                  r_squared=r_squared(signal[used], best.rss)),
     )
 
 
@@ -315,7 +219,7 @@ def _depth_signal(stack: Any, *, axis: int, z_step: float) -> tuple[np.ndarray, 
     """
     import warnings
 
-    from .attenuation import AttenuationWarning, estimate_attenuation
+    from ..attenuation import AttenuationWarning, estimate_attenuation
 
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", AttenuationWarning)
@@ -334,7 +238,7 @@ def estimate_bleaching(
     mask: Any = None,
     offset: float | None = None,
     axis_kind: str | None = None,
-    progress: ProgressCallback | None = None,
+    progress: Progress | None = None,
 ) -> BleachingReport:
     """Measure how much the foreground signal faded along the acquisition order.
 
@@ -462,221 +366,3 @@ def estimate_bleaching(
         used = clear if np.count_nonzero(clear) >= 2 else finite
     return _fit_report(signal, used, interval=interval, tolerance=tolerance, axis_kind=axis_kind,
                        offset=level, sigma=background.sigma, fraction=float(np.mean(fractions)))
-
-
-def correct_bleaching(
-    series: Any,
-    report: BleachingReport,
-    *,
-    method: str = "fit",
-    axis: int = 0,
-    progress: ProgressCallback | None = None,
-) -> Any:
-    """Divide the fading measured by :func:`estimate_bleaching` out of a series.
-
-    Parameters
-    ----------
-    series : array_like or dask array
-        The series the report was measured on (same length along *axis*).
-        Never modified.
-    report : BleachingReport
-        From :func:`estimate_bleaching` on this series.
-    method : {"fit", "ratio", "histogram"}
-        ``"fit"``: divide by the fitted model, ``(I - offset) * g + offset`` with
-        ``g_t = model[0] / model[t]`` (smooth; follows the model).
-        ``"ratio"``: the same with the measured profile, ``g_t = profile[0] /
-        profile[t]`` (follows frame-to-frame changes, noisier).
-        ``"histogram"``: match each frame's histogram to the first frame's
-        (changes contrast too; intensities are no longer proportional).
-    axis : int
-        The acquisition axis (as given to :func:`estimate_bleaching`).
-    progress : callable, optional
-        ``progress(done, total)`` between frames (numpy input only).
-
-    Returns
-    -------
-    ndarray or dask array of float32
-        Same shape as *series*; lazy when *series* is a dask array. Corrected
-        intensities are relative, not calibrated, and the correction amplifies
-        the noise of late, faded frames.
-
-    Raises
-    ------
-    ParameterError
-        For a bad method, a report of another series, or a model or profile
-        that is not positive in every frame.
-
-    References
-    ----------
-    .. [1] K. Miura, F1000Research 9:1494, 2020, doi:10.12688/f1000research.27171.1
-       (ratio, fitted-decay and histogram-matching corrections).
-
-    Examples
-    --------
-    >>> frame = np.zeros((4, 16, 16)); frame[:, 4:12, 4:12] = 1000.0
-    >>> series = 100 + frame * 0.9 ** np.arange(6)[:, None, None, None]
-    >>> report = estimate_bleaching(series)
-    >>> flat = correct_bleaching(series, report)
-    >>> flat.dtype, round(float(flat[-1, 0, 8, 8]), 1)
-    (dtype('float32'), 1100.0)
-    """
-    series, axis = check_stack(series, name="series", axis=axis)
-    method = check_choice(method, name="method", choices=("fit", "ratio", "histogram"))
-    if not isinstance(report, BleachingReport):
-        fail("report", "a BleachingReport from estimate_bleaching", report)
-    n = int(series.shape[axis])
-    if report.n_frames != n:
-        fail("report", f"a report of a series with {n} frames along axis {axis}",
-             f"<a report of {report.n_frames} frames>")
-    if method == "histogram":
-        return _bleach_correct.match_frames(series, axis=axis, progress=progress)
-    base = report.model_profile if method == "fit" else report.profile
-    if report.model == "none":
-        base = np.ones(n)
-    if not np.all(base > 0):
-        fail("report", f"a positive {'model' if method == 'fit' else 'measured'} signal in "
-             "every frame", f"<{int(np.count_nonzero(~(base > 0)))} frames at or below the background>",
-             hint="use method='histogram' or a mask on the structure")
-    gains = float(base[0]) / np.asarray(base, dtype=np.float64)
-    return _bleach_correct.apply_gains(series, gains, report.offset, axis=axis, progress=progress)
-
-
-def _through_origin(x: np.ndarray, y: np.ndarray) -> tuple[float, float, float]:
-    """Slope of y = b x, its standard error and the R² (centred)."""
-    sxx = float(np.sum(x * x))
-    slope = float(np.sum(x * y)) / sxx
-    rss = float(np.sum((y - slope * x) ** 2))
-    dof = max(1, x.size - 1)
-    return slope, math.sqrt(rss / dof / sxx), _r_squared(y, rss)
-
-
-def _with_intercept(x: np.ndarray, y: np.ndarray) -> tuple[float, float, float]:
-    """Slope of y = a + b x, its standard error and the R²."""
-    result = stats.linregress(x, y)
-    return float(result.slope), float(result.stderr), float(result.rvalue**2)
-
-
-def _two_pass_fits(fwd: np.ndarray, rev: np.ndarray, valid: np.ndarray,
-                   z_step: float) -> dict[str, Any]:
-    n = fwd.size
-    i = np.arange(n, dtype=np.float64)
-    exposures = 2.0 * n - 1.0 - 2.0 * i
-    valid = valid & (fwd > 0) & (rev > 0)
-    if np.count_nonzero(valid) < 3:
-        fail("forward", "at least 3 slices with a foreground above the background in both passes",
-             f"<{int(np.count_nonzero(valid))} such slices>")
-    log_ratio = np.full(n, math.nan)
-    log_ratio[valid] = np.log(rev[valid] / fwd[valid])
-    b, se_b, r2_rate = _through_origin(exposures[valid], log_ratio[valid])
-    t_rate = float(stats.t.ppf(0.975, max(1, np.count_nonzero(valid) - 1)))
-    rate = float(-math.expm1(b))
-    rate_ci = (float(-math.expm1(b + t_rate * se_b)), float(-math.expm1(b - t_rate * se_b)))
-    unbleached = fwd / np.exp(b * i)
-    c, se_c, r2_len = _with_intercept(i[valid] * z_step, np.log(unbleached[valid]))
-    # u = ln S_fwd - i b: the slope on z inherits the uncertainty of b / z_step
-    se_total = math.sqrt(se_c**2 + (se_b / z_step) ** 2)
-    t_len = float(stats.t.ppf(0.975, max(1, np.count_nonzero(valid) - 2)))
-    length = -1.0 / c if c < 0 else math.inf
-    steep, shallow = c - t_len * se_total, c + t_len * se_total
-    length_ci = (-1.0 / steep if steep < 0 else math.inf, -1.0 / shallow if shallow < 0 else math.inf)
-    return {"rate": rate, "rate_ci": rate_ci, "r2_rate": r2_rate, "length": length,
-            "length_ci": length_ci, "r2_length": r2_len, "log_ratio": log_ratio,
-            "exposures": exposures, "unbleached": unbleached,
-            "lost": float(-math.expm1(b * (n - 1)))}
-
-
-def separate_bleaching(
-    forward: Any,
-    reverse: Any,
-    *,
-    z_step: float,
-    axis: int = 0,
-    progress: ProgressCallback | None = None,
-) -> TwoPassResult:
-    """Bleaching rate and attenuation length from two passes over the same stack.
-
-    Acquire the stack twice with the same settings: first from the surface
-    down (*forward*), then deepest-first (*reverse*). With one-photon
-    excitation every slice exposure bleaches the whole depth, so slice *i* is
-    seen after *i* exposures in the forward pass and after ``2N - 1 - i`` in the
-    reverse pass. Their ratio cancels structure and depth attenuation:
-    ``S_rev(i) / S_fwd(i) = (1 - k)**(2N - 1 - 2i)``, fitted through the origin
-    on the log scale. The forward profile divided by ``(1 - k)**i`` then
-    gives the attenuation length ℓ from ``exp(-z / ℓ)``. Both passes are
-    measured on the same foreground: per slice, the Otsu foreground of the
-    average of the two passes, minus each slice's own background. Slices
-    whose foreground is not 3 background standard deviations above the
-    background in both passes are left out of the fits.
-
-    The rate is robust (structure cancels in the ratio); the length is only
-    as good as the forward profile, whose changes of structure with depth
-    remain (the interval says how well it is determined).
-
-    Parameters
-    ----------
-    forward, reverse : array_like or dask array, at least 3-D
-        The two passes, both stored in slice order (surface first). Same
-        shape. Never modified.
-    z_step : float
-        Slice spacing in µm.
-    axis : int
-        The depth axis of both arrays.
-    progress : callable, optional
-        ``progress(done, total)`` between slices; may raise ``Cancelled``.
-
-    Returns
-    -------
-    TwoPassResult
-        Frozen dataclass; profiles are float64 arrays.
-
-    Raises
-    ------
-    ParameterError
-        For bad arrays, different shapes, a bad *z_step*, or fewer than 3
-        slices with a foreground in both passes.
-
-    References
-    ----------
-    .. [1] W. Denk, J. H. Strickler, W. W. Webb, "Two-photon laser scanning
-       fluorescence microscopy", Science 248:73-76, 1990, doi:10.1126/science.2321027.
-    .. [2] G. H. Patterson, D. W. Piston, "Photobleaching in two-photon
-       excitation microscopy", Biophys. J. 78(4):2159-2162, 2000,
-       doi:10.1016/S0006-3495(00)76762-2.
-
-    Examples
-    --------
-    >>> n, k, ell, dz = 20, 0.01, 40.0, 2.0
-    >>> i = np.arange(n)[:, None, None]
-    >>> structure = np.zeros((n, 16, 16)); structure[:, 4:12, 4:12] = 1000.0
-    >>> depth = np.exp(-i * dz / ell)
-    >>> fwd = 100 + structure * depth * (1 - k) ** i
-    >>> rev = 100 + structure * depth * (1 - k) ** (2 * n - 1 - i)
-    >>> result = separate_bleaching(fwd, rev, z_step=dz)
-    >>> round(result.rate_per_exposure, 4), round(result.length_um, 1)
-    (0.01, 40.0)
-    """
-    forward, axis_f = check_stack(forward, name="forward", axis=axis)
-    reverse, axis_r = check_stack(reverse, name="reverse", axis=axis)
-    if tuple(forward.shape) != tuple(reverse.shape):
-        fail("reverse", f"an array of the forward pass's shape {tuple(forward.shape)}",
-             f"<shape {tuple(reverse.shape)}>")
-    z_step = check_number(z_step, name="z_step", low=0, low_open=True)
-    fwd_moved, rev_moved = depth_first(forward, axis_f), depth_first(reverse, axis_r)
-    n = int(fwd_moved.shape[0])
-    if n < 3:
-        fail("forward", "at least 3 slices along the depth axis", f"<{n} slices>")
-    background = sample_background(fwd_moved)
-    fwd, rev, valid = per_slice_masks(fwd_moved, rev_moved, progress=progress)
-    fits = _two_pass_fits(fwd, rev, valid, z_step)
-    return TwoPassResult(
-        rate_per_exposure=fits["rate"], rate_interval=fits["rate_ci"], length_um=fits["length"],
-        length_interval=fits["length_ci"], r_squared_rate=fits["r2_rate"],
-        r_squared_length=fits["r2_length"], fraction_lost=fits["lost"],
-        forward_profile=_frozen(fwd), reverse_profile=_frozen(rev),
-        log_ratio=_frozen(fits["log_ratio"]), exposures=_frozen(fits["exposures"]),
-        unbleached_profile=_frozen(fits["unbleached"]), offset=background.level, n_slices=n,
-        z_step=z_step, caveat=TWO_PASS_CAVEAT,
-        summary=two_pass_summary(rate=fits["rate"], rate_interval=fits["rate_ci"],
-                                 fraction_lost=fits["lost"], length_um=fits["length"],
-                                 length_interval=fits["length_ci"]),
-    )

@@ -12,9 +12,10 @@ from typing import Any, Callable
 
 import numpy as np
 
-from . import _atten_models as models
-from ._chunks import depth_chunks, plane_nbytes
-from ._validate import depth_first, is_dask, report_progress
+from ..._shared.progress import report_progress
+from ..._shared.validation import depth_first, is_dask
+from ..primitives.chunks import depth_chunks, plane_nbytes
+from . import models
 
 try:  # numba is a dependency, but keep a numpy path in case it fails to import
     import numba
@@ -50,7 +51,7 @@ def _scale(src: np.ndarray, dst: np.ndarray, gain: np.ndarray, offset: float) ->
 
 def _map_slices(src: np.ndarray, dst: np.ndarray, rows: range, maps: tuple,
                 use_map: np.ndarray, gain: np.ndarray, offset: float) -> None:
-    """Histogram model: each slice through its quantile lookup (or the capped gain)."""
+    """Quantile model: each slice through its quantile lookup (or the capped gain)."""
     source, reference = maps
     for local, index in enumerate(rows):
         if use_map[index]:

@@ -14,7 +14,7 @@ from typing import Any
 
 import numpy as np
 
-from ._validate import check_int, check_number, check_stack, depth_first, is_dask
+from ..._shared.validation import check_int, check_number, check_stack, depth_first, is_dask
 
 __all__ = ["Background", "background_level", "slice_background", "clipped_rows"]
 

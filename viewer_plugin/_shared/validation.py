@@ -1,4 +1,4 @@
-"""The one input-validation helper of stackdepth.
+"""The one input-validation helper of stackdepth (part of the shared foundation).
 
 Every public kernel, reader, writer, widget and the command line check their
 inputs through the functions here, so that every message has the same form::
@@ -19,7 +19,6 @@ import numpy as np
 
 __all__ = [
     "ParameterError",
-    "Cancelled",
     "fail",
     "check_stack",
     "check_number",
@@ -30,7 +29,6 @@ __all__ = [
     "depth_first",
     "float_dtype",
     "is_dask",
-    "report_progress",
 ]
 
 
@@ -39,10 +37,6 @@ class ParameterError(ValueError):
 
     The message names the parameter, what was expected and what came.
     """
-
-
-class Cancelled(Exception):
-    """Raised by a progress callback to stop a long computation early."""
 
 
 def _describe(value: Any) -> str:
@@ -275,12 +269,3 @@ def float_dtype(dtype: Any) -> np.dtype:
     if dtype.kind in "ui" and dtype.itemsize >= 4:
         return np.dtype(np.float64)
     return np.dtype(np.float32)
-
-
-def report_progress(progress: Any, done: int, total: int) -> None:
-    """Call a progress callback ``progress(done, total)`` when one was given.
-
-    The callback may raise :class:`Cancelled` to stop the computation.
-    """
-    if progress is not None:
-        progress(done, total)

@@ -8,7 +8,7 @@ All fits work in log space on the measured foreground signal ``s(z)``:
   with ``absolute_sigma=False``;
 * smooth: a local linear regression of ``ln s`` with a Gaussian depth kernel
   (a LOWESS without robustness passes);
-* histogram: per-slice quantiles mapped onto the reference slice's quantiles.
+* quantile: per-slice quantiles mapped onto the reference slice's quantiles.
 """
 
 from __future__ import annotations
@@ -18,7 +18,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-#: Number of quantile levels kept per slice by the histogram model.
+#: Number of quantile levels kept per slice by the quantile model.
 N_QUANTILES = 1025
 
 

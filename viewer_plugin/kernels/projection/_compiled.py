@@ -5,7 +5,7 @@ chunk -> combine -> aggregate reduction: it folds one z-chunk ``block`` of
 shape ``(nz, rows, cols)`` into per-pixel state arrays of shape
 ``(rows, cols)`` that already hold the partial result of the chunks before
 it. Folding a chunk into a freshly initialised state is exactly the *chunk*
-step; the pure-numpy *combine* functions in :mod:`._proj_combine` merge two
+step; the pure-numpy *combine* functions in :mod:`.reduction` merge two
 such partial results and are what the tests check for associativity.
 
 Conventions shared by all kernels
@@ -17,7 +17,7 @@ Conventions shared by all kernels
 * Rows are processed in parallel (``prange``); the inner loop runs over the
   contiguous last axis and is written without branches so LLVM vectorises it.
 
-Nothing here validates input: the public functions in :mod:`.projections` do.
+Nothing here validates input: the public functions in the projection modules do.
 """
 
 from __future__ import annotations
@@ -30,13 +30,13 @@ from numba.extending import intrinsic, overload
 from numba.np.numpy_support import as_dtype
 
 __all__ = [
-    "brightest_update",
+    "peak_update",
     "weighted_update",
     "tinted_update",
-    "blend_update_lut",
-    "blend_update_float",
-    "blend_rgb_update_lut",
-    "blend_rgb_update_float",
+    "occlusion_update_lut",
+    "occlusion_update_float",
+    "occlusion_rgb_update_lut",
+    "occlusion_rgb_update_float",
     "finish_depth_index",
     "finish_depth_sums",
     "finish_brightness",
@@ -194,7 +194,7 @@ def _tint(t, ca, ua, cb, ub, cc, uc, cd, ud):
 
 
 @njit(**_OPTS)
-def brightest_update(block, z0, vals, idx):
+def peak_update(block, z0, vals, idx):
     """Fold *block* into (maximum, index of first maximum); NaN is skipped.
 
     State: ``vals`` (block dtype; NaN for floats and the dtype's minimum for
@@ -299,7 +299,7 @@ def tinted_update(block, z0, lo, scale, colours, vals, idx, tint):
 
     ``colours[z]`` is the (already gamma-adjusted, non-negative) colour of
     global slice z; ``tint`` is planar, shape (3, rows, cols), float32,
-    starting at 0. ``idx`` is int16 or int32 as in :func:`brightest_update`.
+    starting at 0. ``idx`` is int16 or int32 as in :func:`peak_update`.
     Threads take bands of ``_BAND`` rows and fold four slices at a time with
     the state in registers (four times fewer state reads and writes); the
     slices are still seen in increasing depth, so ties resolve as before.
@@ -361,7 +361,7 @@ def tinted_update(block, z0, lo, scale, colours, vals, idx, tint):
 
 
 @njit(**_OPTS)
-def blend_update_lut(block, emit, keep, reverse, colour, trans):
+def occlusion_update_lut(block, emit, keep, reverse, colour, trans):
     """Front-to-back compositing of an unsigned-integer *block* through tables.
 
     ``emit[x] = a * u`` and ``keep[x] = 1 - a`` for every value x the dtype
@@ -408,7 +408,7 @@ def blend_update_lut(block, emit, keep, reverse, colour, trans):
 
 
 @njit(**_OPTS)
-def blend_update_float(block, lo, scale, kappa, reverse, colour, trans):
+def occlusion_update_float(block, lo, scale, kappa, reverse, colour, trans):
     """Front-to-back compositing of a floating-point *block* (exact exp)."""
     nz, nr, nc = block.shape
     for r in prange(nr):
@@ -428,8 +428,8 @@ def blend_update_float(block, lo, scale, kappa, reverse, colour, trans):
 
 
 @njit(**_OPTS)
-def blend_rgb_update_lut(block, z0, emit, keep, reverse, colours, colour, trans):
-    """As :func:`blend_update_lut`, emitting ``u * colours[z]``; planar RGB state (3, rows, cols)."""
+def occlusion_rgb_update_lut(block, z0, emit, keep, reverse, colours, colour, trans):
+    """As :func:`occlusion_update_lut`, emitting ``u * colours[z]``; planar RGB state (3, rows, cols)."""
     nz, nr, nc = block.shape
     for r in prange(nr):
         k0 = colour[0, r]
@@ -453,8 +453,8 @@ def blend_rgb_update_lut(block, z0, emit, keep, reverse, colours, colour, trans)
 
 
 @njit(**_OPTS)
-def blend_rgb_update_float(block, z0, lo, scale, kappa, reverse, colours, colour, trans):
-    """As :func:`blend_update_float`, emitting ``u * colours[z]``; planar RGB state (3, rows, cols)."""
+def occlusion_rgb_update_float(block, z0, lo, scale, kappa, reverse, colours, colour, trans):
+    """As :func:`occlusion_update_float`, emitting ``u * colours[z]``; planar RGB state (3, rows, cols)."""
     nz, nr, nc = block.shape
     for r in prange(nr):
         k0 = colour[0, r]

@@ -21,19 +21,8 @@ from typing import Any, Callable
 
 import numpy as np
 
-from . import _atten_models as models
-from ._atten_measure import (
-    Foreground,
-    auto_step,
-    brightest_slice,
-    lateral_sample,
-    measure_background,
-    measure_foreground,
-    moved_mask,
-)
-from ._atten_correct import apply_correction
-from ._chunks import depth_chunks, plane_nbytes
-from ._validate import (
+from ..._shared.progress import report_progress
+from ..._shared.validation import (
     check_choice,
     check_int,
     check_mask,
@@ -41,7 +30,18 @@ from ._validate import (
     check_stack,
     depth_first,
     fail,
-    report_progress,
+)
+from ..primitives.chunks import depth_chunks, plane_nbytes
+from . import models
+from .correct import apply_correction
+from .measure import (
+    Foreground,
+    auto_step,
+    brightest_slice,
+    lateral_sample,
+    measure_background,
+    measure_foreground,
+    moved_mask,
 )
 
 __all__ = [
@@ -54,7 +54,7 @@ __all__ = [
 ]
 
 #: The depth models of :func:`estimate_attenuation`.
-MODELS = ("exponential", "smooth", "histogram")
+MODELS = ("exponential", "smooth", "quantile")
 
 #: Shown wherever corrected data or an estimated length is shown.
 CAUTION = (
@@ -83,7 +83,7 @@ class AttenuationFit:
     Attributes
     ----------
     model : str
-        "exponential", "smooth" or "histogram".
+        "exponential", "smooth" or "quantile".
     length_um : float
         1/e attenuation length in um from the exponential fit (all models);
         ``inf`` when the signal does not decrease with depth.
@@ -98,10 +98,10 @@ class AttenuationFit:
         Mean foreground signal above the slice background, and its standard
         error; NaN where a slice had too little foreground to measure.
     model_profile : ndarray of float64
-        The fitted model at every slice (the exponential fit for "histogram").
+        The fitted model at every slice (the exponential fit for "quantile").
     gain : ndarray of float64
         Multiplicative gain bringing each slice to the first slice's level
-        (for "histogram": the ratio of mean levels, for display; the
+        (for "quantile": the ratio of mean levels, for display; the
         correction uses *quantile_maps*).
     depth_um : ndarray of float64
         Depth of each slice from the first, ``index * z_step``.
@@ -116,7 +116,7 @@ class AttenuationFit:
     n_iterations : int
         Passes of the select-foreground / fit loop; *converged* tells whether it settled.
     quantile_maps : tuple of ndarray or None
-        "histogram" only: per-slice quantiles ``(n_slices, n_levels)`` and the
+        "quantile" only: per-slice quantiles ``(n_slices, n_levels)`` and the
         reference (first) slice's quantiles ``(n_levels,)``.
     warnings : tuple of str
         Things a user should know before trusting the numbers.
@@ -176,7 +176,7 @@ def _check_inputs(stack: Any, z_step: Any, model: Any, axis: Any, mask: Any) -> 
 
 
 def _model_gain(model: str, depth: np.ndarray, fg: Foreground, bandwidth: float) -> tuple:
-    """Gain and model profile of one pass (the histogram model iterates on the exponential)."""
+    """Gain and model profile of one pass (the quantile model iterates on the exponential)."""
     if model == "smooth":
         log_model = models.smooth_log_profile(depth, fg.signal, fg.sem, bandwidth=bandwidth)
         gain = np.exp(log_model[0] - log_model)
@@ -283,11 +283,11 @@ def estimate_attenuation(
         Integer or float z-stack; not modified. NaN voxels are ignored (with a warning).
     z_step : float
         Slice spacing along *axis* in um (> 0).
-    model : {"exponential", "smooth", "histogram"}
+    model : {"exponential", "smooth", "quantile"}
         "exponential": Beer-Lambert fit, weighted least squares of ``ln profile``.
         "smooth": local linear smoothing of ``ln profile`` (Gaussian kernel),
-        for stacks that do not decay exponentially. "histogram": map each
-        slice's histogram onto the first slice's (assumes every slice holds
+        for stacks that do not decay exponentially. "quantile": map each
+        slice's quantiles onto the first slice's (assumes every slice holds
         similar content). *length_um*, its interval and *r_squared* always
         come from the exponential model's own select-and-fit loop, so they do
         not depend on the model chosen.
@@ -384,7 +384,7 @@ def estimate_attenuation(
     if offset is None:
         offset = models.estimate_offset(background.level, curve, float(np.nanmin(sample)))
     maps = None
-    if model == "histogram":
+    if model == "quantile":
         maps = models.quantile_maps(sample, 0)
         gain = models.equivalent_gain(maps[0], maps[1], offset)
     notes = _findings(exp_fit, fg, length, interval, converged, model)
@@ -447,7 +447,7 @@ def correct_attenuation(
         The stack the fit was measured on (or another of the same depth);
         not modified.
     fit : AttenuationFit
-        From :func:`estimate_attenuation`. For the "histogram" model each
+        From :func:`estimate_attenuation`. For the "quantile" model each
         slice is mapped through its quantile map onto the first slice.
     max_gain : float
         Gains above this are capped (with a warning saying how many slices);
@@ -505,6 +505,6 @@ def correct_attenuation(
                       f"above max_gain={max_gain:g} and were capped at it", AttenuationWarning,
                       stacklevel=2)
     gains = np.minimum(gains, max_gain)
-    maps = fit.quantile_maps if fit.model == "histogram" else None
+    maps = fit.quantile_maps if fit.model == "quantile" else None
     use_map = None if maps is None else ~capped & np.isfinite(fit.gain)
     return apply_correction(stack, axis, gains, fit.offset, maps, use_map, progress)

@@ -15,9 +15,10 @@ from typing import Any, Callable
 
 import numpy as np
 
-from ._chunks import depth_chunks, plane_nbytes
-from ._validate import depth_first, is_dask, report_progress
-from .profiles import clipped_rows
+from ..._shared.progress import report_progress
+from ..._shared.validation import depth_first, is_dask
+from ..primitives.background import clipped_rows
+from ..primitives.chunks import depth_chunks, plane_nbytes
 
 #: Wanted number of sampled voxels per slice (the lateral step is chosen for it).
 TARGET_SAMPLE_PER_SLICE = 2**14

@@ -12,9 +12,10 @@ from typing import Any
 
 import numpy as np
 
-from ._chunks import depth_chunks, plane_nbytes
-from ._validate import fail, is_dask, report_progress
-from .profiles import Background, background_level
+from ..._shared.progress import report_progress
+from ..._shared.validation import fail, is_dask
+from ..primitives.background import Background, background_level
+from ..primitives.chunks import depth_chunks, plane_nbytes
 
 __all__ = [
     "sample_background",

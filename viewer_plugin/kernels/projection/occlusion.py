@@ -1,0 +1,188 @@
+"""Occlusion projection: nearer structures partly hide deeper ones.
+
+The emission-absorption model of Max (1995): each voxel emits light in
+proportion to its normalised value and absorbs in proportion to it, and the
+slices are composited front to back with Porter & Duff's "over" operator. A
+rendering for looking, not a measurement.
+"""
+
+from __future__ import annotations
+
+from typing import Any, Optional
+
+import numpy as np
+
+from ..._shared.progress import Progress
+from ..._shared.validation import check_choice, check_number
+from . import _compiled as nb
+from ._common import KERNEL_LOCK, depth_view
+from .colour import depth_colours, resolve_lut
+from .limits import resolve_clim
+from .reduction import fold_chunks, kernel_dtype
+
+__all__ = ["DEFAULT_OPTICAL_DEPTH", "VIEWS", "default_density", "occlusion_projection"]
+
+#: Viewing sides of :func:`occlusion_projection`.
+VIEWS = ("top", "bottom")
+#: Optical depth of a fully bright column through the whole stack when
+#: ``density=None`` in :func:`occlusion_projection`.
+DEFAULT_OPTICAL_DEPTH = 10.0
+
+
+def default_density(n_slices: int, z_step: float) -> float:
+    """The default extinction per µm: ``DEFAULT_OPTICAL_DEPTH / (n_slices * z_step)``.
+
+    A fully bright column through the whole stack then lets through e^-10 of
+    the light behind it. Used by :func:`occlusion_projection` when
+    ``density=None``, and by anything that renders other views of the same
+    stack with the same density.
+
+    Examples
+    --------
+    >>> default_density(50, 2.0)
+    0.1
+    """
+    return DEFAULT_OPTICAL_DEPTH / (int(n_slices) * float(z_step))
+
+
+def _occlusion_tables(kdtype: np.dtype, lo: float, hi: float, kappa: float) -> tuple:
+    """Per-integer-value ``a * u`` and ``1 - a`` for uint8/uint16 input (float64)."""
+    x = np.arange(2 ** (8 * kdtype.itemsize), dtype=np.float64)
+    u = np.clip((x - lo) / (hi - lo), 0.0, 1.0)
+    return -np.expm1(-kappa * u) * u, np.exp(-kappa * u)
+
+
+def _occlusion_fold(v: Any, lo: float, hi: float, kappa: float, reverse: bool,
+                colours: Optional[np.ndarray], progress: Progress) -> np.ndarray:
+    """Composited colour over all chunks: float64 grey, or planar float32 RGB if *colours*.
+
+    The RGB accumulators are float32 (each step adds at most 1 to a sum that
+    stays in [0, 1]: rounding stays near 1e-7 per slice) to keep the extra
+    memory of the colour variant within a quarter of a 16-bit stack.
+    """
+    others = v.shape[1:]
+    kdtype = kernel_dtype(v.dtype)
+    rgb_shape = others[:-2] + (3,) + others[-2:]
+    colour = (np.zeros(others, np.float64) if colours is None
+              else np.zeros(rgb_shape, np.float32))
+    trans = np.ones(others, np.float64)
+    tables = _occlusion_tables(kdtype, lo, hi, kappa) if kdtype.kind == "u" else None
+    scale = 1.0 / (hi - lo)
+
+    def fold(block: np.ndarray, z0: int, index: tuple) -> None:
+        c, t = colour[index], trans[index]
+        if colours is None and tables is not None:
+            nb.occlusion_update_lut(block, *tables, reverse, c, t)
+        elif colours is None:
+            nb.occlusion_update_float(block, lo, scale, kappa, reverse, c, t)
+        elif tables is not None:
+            nb.occlusion_rgb_update_lut(block, z0, *tables, reverse, colours, c, t)
+        else:
+            nb.occlusion_rgb_update_float(block, z0, lo, scale, kappa, reverse, colours, c, t)
+
+    with KERNEL_LOCK:
+        fold_chunks(v, fold, reverse=reverse, progress=progress)
+    return colour
+
+
+def occlusion_projection(
+    stack: Any,
+    *,
+    z_step: float = 1.0,
+    density: Optional[float] = None,
+    clim: Optional[tuple[float, float]] = None,
+    view: str = "top",
+    cmap: Any = None,
+    axis: int = 0,
+    progress: Progress = None,
+) -> np.ndarray:
+    """Emission-absorption projection: bright structures hide what lies behind.
+
+    Each voxel emits its normalised intensity ``u = clip((I - lo) / (hi -
+    lo), 0, 1)`` and absorbs with extinction ``density * u`` per µm. A slice
+    of thickness *z_step* then has opacity ``a = 1 - exp(-density * u *
+    z_step)`` and colour u, composited front to back: ``C += T * a * u``,
+    ``T *= 1 - a``. A homogeneous slab of value u and thickness L gives
+    exactly ``u * (1 - exp(-density * u * L))`` whatever the number of slices.
+
+    Parameters
+    ----------
+    stack : array_like or dask array
+        Stack with at least 3 dimensions; integer, boolean or floating point.
+        NaN counts as no signal. Not modified.
+    z_step : float, optional
+        Slice thickness in µm (> 0).
+    density : float, optional
+        Extinction per µm of a fully bright voxel (>= 0). Default ``None``:
+        ``DEFAULT_OPTICAL_DEPTH / (n * z_step)`` = 10 / stack depth, i.e. a
+        fully bright column through the whole stack would let through e^-10
+        of the light behind it, and a fully bright structure one tenth of
+        the stack deep is 63 % opaque (1 - 1/e). Small densities approach a
+        (squared-intensity) sum projection; large ones show only the first
+        bright structure met from the viewing side.
+    clim : (float, float), optional
+        (lo, hi) display limits; default the 0.1 and 99.9 percentiles,
+        estimated from a strided subsample of the stack.
+    view : {"top", "bottom"}, optional
+        Composite from slice 0 ("top") or from the last slice ("bottom").
+    cmap : str, Colormap or (N, 3) array, optional
+        When given, each slice emits ``u * colour(depth)`` (depth from the
+        first to the last slice through the colour table, as in
+        :func:`depth_coded_projection`) and the result is RGB.
+    axis : int, optional
+        The depth axis (default 0); other axes are kept.
+    progress : callable, optional
+        ``progress(done, total)`` between z-chunks; may raise Cancelled.
+
+    Returns
+    -------
+    ndarray of float32
+        The composited image in [0, 1], the stack's shape without *axis*;
+        with *cmap*, an extra last axis of 3 (RGB), a strided view of
+        channel-planar storage (no copy).
+
+    Raises
+    ------
+    ParameterError
+        For a bad stack, z_step <= 0, density < 0, clim with hi <= lo, an
+        unknown view or colour table.
+
+    Notes
+    -----
+    The result is a rendering, not a measurement: the "absorption" is a
+    display device derived from the signal itself, not the sample's real
+    attenuation. 8- and 16-bit input goes through a table of (a * u, 1 - a)
+    per input value.
+
+    References
+    ----------
+    .. [1] N. Max, "Optical models for direct volume rendering", IEEE TVCG
+       1(2):99-108, 1995, doi:10.1109/2945.468400.
+    .. [2] T. Porter, T. Duff, "Compositing digital images", Computer
+       Graphics 18(3):253-259, 1984, doi:10.1145/964965.808606.
+    .. [3] M. Levoy, "Display of surfaces from volume data", IEEE CG&A
+       8(3):29-37, 1988, doi:10.1109/38.511.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> slab = np.full((4, 1, 1), 1.0)
+    >>> out = occlusion_projection(slab, z_step=0.5, density=1.0, clim=(0, 1))
+    >>> bool(np.isclose(out[0, 0], 1 - np.exp(-2.0)))
+    True
+    """
+    v, n = depth_view(stack, axis)
+    z_step = check_number(z_step, name="z_step", low=0.0, low_open=True)
+    if density is None:
+        density = default_density(n, z_step)
+    density = check_number(density, name="density", low=0.0)
+    view = check_choice(view, name="view", choices=VIEWS)
+    lut = None if cmap is None else resolve_lut(cmap)
+    lo, hi = resolve_clim(clim, v)
+    colours = None
+    if lut is not None:
+        colours = depth_colours(n, z_step=z_step, cmap=lut)
+    colour = _occlusion_fold(v, lo, hi, density * z_step, view == "bottom", colours, progress)
+    if colours is not None:
+        return np.moveaxis(colour, -3, -1)  # a view of the planar float32 state
+    return colour.astype(np.float32)
