@@ -10,6 +10,7 @@ from __future__ import annotations
 import argparse
 import importlib
 import logging
+import re
 import sys
 from typing import Sequence
 
@@ -67,7 +68,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     except CommandError as exc:
         return _error(str(exc), EXIT_USAGE)
     except (ValueError, OSError) as exc:
-        return _error(str(exc) or type(exc).__name__, EXIT_USAGE)
+        return _error(_option_words(str(exc) or type(exc).__name__, parser), EXIT_USAGE)
     except KeyboardInterrupt:
         return _error("interrupted", 130)
     except Exception as exc:  # noqa: BLE001 - never show a traceback to a user
@@ -75,6 +76,25 @@ def main(argv: Sequence[str] | None = None) -> int:
             logging.exception("internal error")
         return _error(f"internal error ({type(exc).__name__}: {exc}); rerun with -v for details",
                       EXIT_FAILURE)
+
+
+def _option_words(message: str, parser: argparse.ArgumentParser) -> str:
+    """Name a kernel parameter as the command-line option that set it ("z_step:" -> "--z-step:")."""
+    match = re.match(r"([a-z][a-z_]*)(\[\d+\])?:", message)
+    if match is None:
+        return message
+    option = "--" + match.group(1).replace("_", "-")
+    known = {opt for action in _all_actions(parser) for opt in action.option_strings}
+    return option + message[len(match.group(1)):] if option in known else message
+
+
+def _all_actions(parser: argparse.ArgumentParser) -> list[argparse.Action]:
+    actions = list(parser._actions)
+    for action in parser._actions:
+        if isinstance(action, argparse._SubParsersAction):
+            for sub in action.choices.values():
+                actions += sub._actions
+    return actions
 
 
 def _error(message: str, status: int) -> int:

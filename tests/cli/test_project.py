@@ -113,7 +113,7 @@ def test_existing_figure_sidecar_refused_before_work(stack_file, tmp_path):
         (["--method", "max", "--figure", "f.png"], "--figure"),
         (["--gamma", "0"], "gamma"),
         (["--cmap", "no_such_map"], "no_such_map"),
-        (["--depth-range", "5", "1"], "depth_range"),
+        (["--depth-range", "5", "1"], "--depth-range"),  # the option, as typed
         (["--z-step", "-1"], "--z-step"),
         (["--channel", "1"], "--channel"),
     ],

@@ -39,6 +39,9 @@ class Stack:
         The file it came from, if any.
     name : str
         A short name for outputs (file stem or layer name).
+    translate : tuple of float or None
+        Position of the first voxel per axis, in the units of *scale*
+        (``None``: all zero).
     """
 
     data: Any
@@ -48,10 +51,13 @@ class Stack:
     metadata: dict[str, Any] = field(default_factory=dict)
     path: Path | None = None
     name: str = ""
+    translate: tuple[float, ...] | None = None
 
     def __post_init__(self) -> None:
         if not self.name:
             self.name = self.path.name.split(".")[0] if self.path is not None else "image"
+        if self.translate is None:
+            self.translate = (0.0,) * len(self.axes)
 
     @property
     def units(self) -> tuple[str, ...]:

@@ -1,20 +1,27 @@
-"""Helpers shared by the sub-commands: errors, progress, atomic outputs."""
+"""Helpers shared by the sub-commands: errors, inputs, outputs and terminal progress.
+
+The commands only translate arguments into calls of :mod:`viewer_plugin.jobs`
+and write or print what comes back; everything here is about the terminal
+and the file system, nothing about the analysis.
+"""
 
 from __future__ import annotations
 
 import os
 import sys
-import time
 from pathlib import Path
-from typing import Any
+from typing import Any, Iterable
 
-from .._shared.jsonio import write_json
+from .._shared.atomic import atomic_write
 
 #: Exit statuses (documented in ``stackdepth --help``).
 EXIT_OK = 0
 EXIT_FAILURE = 1
 EXIT_USAGE = 2
 EXIT_OVER_TOLERANCE = 3
+
+#: Suffixes of the image files the commands write.
+OME_TIFF = (".ome.tif", ".ome.tiff")
 
 
 class CommandError(Exception):
@@ -31,10 +38,12 @@ def check_output_path(path: str | os.PathLike[str], *, overwrite: bool, name: st
     return out
 
 
-def check_outputs(args: Any, options: tuple[str, ...] = ("output", "report", "plot")) -> dict[str, Path | None]:
+def check_outputs(args: Any, options: tuple[str, ...] = ("output", "report", "plot"),
+                  images: Iterable[str] = ("output",)) -> dict[str, Path | None]:
     """Check every output option of *args* before any work: no silent overwrite, distinct files.
 
-    ``--output`` must name an OME-TIFF. Returns option name -> path (or None when not given).
+    The options named in *images* must name OME-TIFF files. Returns option
+    name -> path (or None when not given).
     """
     out: dict[str, Path | None] = {}
     for option in options:
@@ -45,15 +54,54 @@ def check_outputs(args: Any, options: tuple[str, ...] = ("output", "report", "pl
     if len(set(paths)) != len(paths):
         names = "/".join(f"--{o}" for o in options)
         raise CommandError(f"{names}: expected different files, got the same path twice")
-    for option in ("output", "equalise"):
+    for option in images:
         target = out.get(option)
-        if target is not None and not target.name.lower().endswith((".ome.tif", ".ome.tiff")):
+        if target is not None and not target.name.lower().endswith(OME_TIFF):
             raise CommandError(f"--{option}: expected a .ome.tif file name, got {target.name}")
     return out
 
 
+def read_input(path: str, *, name: str = "INPUT") -> Any:
+    """Read an input stack; a folder or a missing file gets a message that says which."""
+    from ..io import read_stack
+
+    source = Path(path)
+    if source.is_dir() and not source.name.lower().endswith(".zarr"):
+        raise CommandError(f"{name}: {source} is a folder; expected an OME-TIFF or TIFF file")
+    if not source.exists():
+        raise CommandError(f"{name}: {source}: no such file")
+    return read_stack(source)
+
+
+def write_image(path: Path, data: Any, geometry: Any, *, metadata: dict[str, Any],
+                overwrite: bool, channel_names: list[str] | None = None) -> Path:
+    """Write *data* with its geometry (axes and µm scale) as OME-TIFF, atomically."""
+    from ..io import write_ome_tiff
+
+    return write_ome_tiff(path, data, axes=geometry.axes, scale=geometry.scale,
+                          channel_names=channel_names, metadata=metadata, overwrite=overwrite)
+
+
+def save_figure(path: Path, figure: Any, *, dpi: int = 120) -> Path:
+    """Save a matplotlib figure as PNG, atomically."""
+    return atomic_write(path, lambda tmp: figure.savefig(tmp, format="png", dpi=dpi))
+
+
+def in_cli_words(record: dict[str, Any]) -> dict[str, Any]:
+    """A job's provenance with its step sources named as the options that set them."""
+    words = {"z_step_from": "--z-step", "interval_from": "--interval"}
+    return {key: (words[key] if key in words and value == "given" else value)
+            for key, value in record.items()}
+
+
+def print_notes(notes: Iterable[str]) -> None:
+    """Notes go to stderr, each on its own line (only once the command has succeeded)."""
+    for text in notes:
+        print(f"stackdepth: note: {text}", file=sys.stderr)
+
+
 class TerminalProgress:
-    """A one-line progress bar on stderr, shown only when stderr is a terminal.
+    """A progress bar on stderr (tqdm: rate and time left), only when stderr is a terminal.
 
     Call it as ``progress(done, total)``; it matches the kernels' callback.
     """
@@ -61,32 +109,36 @@ class TerminalProgress:
     def __init__(self, label: str, *, stream: Any = None, enabled: bool | None = None) -> None:
         self.label = label
         self.stream = stream if stream is not None else sys.stderr
-        self.enabled = self.stream.isatty() if enabled is None else enabled
-        self._last = 0.0
-        self._shown = False
+        self.enabled = _is_terminal(self.stream) if enabled is None else enabled
+        self._bar: Any = None
 
     def __call__(self, done: int, total: int) -> None:
         if not self.enabled:
             return
-        now = time.monotonic()
-        if done < total and now - self._last < 0.1:
-            return
-        self._last = now
-        fraction = 1.0 if total <= 0 else min(1.0, done / total)
-        width = 30
-        filled = int(round(width * fraction))
-        self.stream.write(f"\r{self.label} [{'#' * filled}{'.' * (width - filled)}] {fraction:4.0%}")
-        self.stream.flush()
-        self._shown = True
+        if self._bar is None:
+            from tqdm import tqdm
+
+            self._bar = tqdm(total=total, desc=self.label, file=self.stream, leave=True,
+                             dynamic_ncols=True, mininterval=0.1)
+        if self._bar.total != total:
+            self._bar.total = total
+        self._bar.n = min(done, total)
+        self._bar.refresh()
 
     def close(self) -> None:
-        if self.enabled and self._shown:
-            self.stream.write("\n")
-            self.stream.flush()
-            self._shown = False
+        if self._bar is not None:
+            self._bar.close()
+            self._bar = None
 
     def __enter__(self) -> "TerminalProgress":
         return self
 
     def __exit__(self, *exc: Any) -> None:
         self.close()
+
+
+def _is_terminal(stream: Any) -> bool:
+    try:
+        return bool(stream.isatty())
+    except (AttributeError, ValueError):
+        return False

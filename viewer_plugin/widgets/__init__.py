@@ -1,5 +1,6 @@
 """napari dock widgets of stackdepth.
 
-Widgets only translate between napari layers and the kernels in
-:mod:`viewer_plugin.kernels`; every computation lives in a kernel.
+The docks only translate between napari layers and the jobs in
+:mod:`viewer_plugin.jobs` (which call the kernels); they share one base,
+:class:`~viewer_plugin.widgets._dock.StackDock`.
 """

@@ -2,10 +2,9 @@
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING, Any, Sequence
+from typing import TYPE_CHECKING, Any
 
-import numpy as np
-from magicgui.widgets import Container, Label, TextEdit
+from magicgui.widgets import Label, TextEdit
 
 if TYPE_CHECKING:  # pragma: no cover
     import napari
@@ -60,46 +59,3 @@ def result_text(*, lines: int = 5) -> TextEdit:
     margins = native.contentsMargins()
     native.setMinimumHeight(lines * metrics.lineSpacing() + margins.top() + margins.bottom() + 8)
     return box
-
-
-def layer_step(layer: Any, axis: int) -> float:
-    """The layer's scale along *axis* (um per voxel when the file said so)."""
-    return float(layer.scale[axis])
-
-
-def projected_geometry(layer: Any, axis: int) -> dict[str, Any]:
-    """``scale``/``translate`` of *layer* with *axis* removed, for a projection."""
-    keep = [i for i in range(layer.ndim) if i != axis]
-    return {
-        "scale": tuple(float(layer.scale[i]) for i in keep),
-        "translate": tuple(float(layer.translate[i]) for i in keep),
-    }
-
-
-def same_geometry(layer: Any) -> dict[str, Any]:
-    """``scale``/``translate`` of *layer*, for a result of the same shape."""
-    return {"scale": tuple(layer.scale), "translate": tuple(layer.translate)}
-
-
-def leading_axis_labels(layer: Any) -> Sequence[str]:
-    """Axis labels of a layer (napari's, or generic ones)."""
-    labels = getattr(layer, "axis_labels", None)
-    if labels is None:
-        return tuple(f"axis {i}" for i in range(layer.ndim))
-    return tuple(labels)
-
-
-def snapshot(data: Any) -> Any:
-    """A cheap fingerprint of array data, used by tests to prove it is unchanged."""
-    arr = np.asarray(data)
-    return arr.shape, arr.dtype, float(np.sum(arr, dtype=np.float64))
-
-
-class PlaceholderWidget(Container):
-    """A dock widget that only says, in one line, what it will do."""
-
-    purpose = ""
-
-    def __init__(self, napari_viewer: "napari.Viewer") -> None:
-        super().__init__(widgets=[Label(value=self.purpose)])
-        self.viewer = napari_viewer

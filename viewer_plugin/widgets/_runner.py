@@ -150,32 +150,3 @@ class BackgroundTask:
         self.worker = None
         for callback in self.finished:
             callback()
-
-
-class TaskWidgetMixin:
-    """Start / stop plumbing shared by dock widgets that own one :class:`BackgroundTask`.
-
-    The widget sets ``title``, ``task`` and the name of the Label that shows a
-    failure (``failure_label`` attribute name, ``failure_prefix`` text).
-    """
-
-    title = ""
-    failure_label = ""
-    failure_prefix = "Could not finish"
-
-    def _start(self, job: Callable[..., Any], on_result: Callable[[Any], None],
-               start_thread: bool) -> Any:
-        worker = self.task.start(job, on_result=on_result, on_stopped=self._stopped,
-                                 start_thread=start_thread)
-        self.last_worker = worker
-        return worker
-
-    def _stopped(self, exc: BaseException) -> None:
-        """A job stopped on bad input or cancel (the runner has shown the notification)."""
-        if not isinstance(exc, Cancelled) and self.failure_label:
-            getattr(self, self.failure_label).value = f"{self.failure_prefix}: {exc}"
-
-    def _notify(self, exc: BaseException) -> None:
-        """Show an error found before a job starts."""
-        notifications.show_error(f"{self.title}: {exc}")
-        self._stopped(exc)

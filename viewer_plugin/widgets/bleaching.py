@@ -1,71 +1,38 @@
 """The "Bleaching check" dock widget: did the signal fade, by how much, within tolerance?
 
-It only translates between layers and :mod:`viewer_plugin.kernels.bleaching`:
-the check runs off the GUI thread (BackgroundTask), shows a plot and a verdict
-sentence, and a correction is added as a new layer; the source layer and its
-data are never changed. A two-pass mode separates bleaching from attenuation.
+It only translates between layers and :mod:`viewer_plugin.jobs.bleaching`: the
+check runs off the GUI thread, shows a plot and a verdict sentence, and a
+correction is added as a new layer; the source layer and its data are never
+changed. A two-pass mode separates bleaching from attenuation.
 """
 
 from __future__ import annotations
 
 import math
-from typing import TYPE_CHECKING, Any, Callable
+from typing import TYPE_CHECKING, Any
 
-from magicgui.widgets import ComboBox, Container, FloatSpinBox, Label, PushButton
+from magicgui.widgets import ComboBox, FloatSpinBox, Label, PushButton
 
-from ._common import (
-    connect_layer_events,
-    disconnect_layer_events,
-    image_layer_choices,
-    leading_axis_labels,
-    result_text,
-    same_geometry,
-    wrapped,
+from ..jobs.choices import (
+    BLEACHING_CAVEAT,
+    DEFAULT_TOLERANCE,
+    RESCALE_LABELS,
+    TOLERANCE_NOTE,
+    TWO_PASS_HELP,
+    labelled,
 )
-from ._runner import BackgroundTask, TaskWidgetMixin
+from ._common import result_text, wrapped
+from ._dock import StackDock, in_dock_words, layer_letters, layer_stack
 
 if TYPE_CHECKING:  # pragma: no cover
     import napari
 
-__all__ = ["BleachingWidget"]
+__all__ = ["BleachingWidget", "SINGLE", "TWO_PASS"]
 
 SINGLE, TWO_PASS = "single", "two-pass"
-CAUTION = ("Corrected intensities are relative, not calibrated, and correction amplifies the "
-           "noise of late (faded) frames. The original layer is kept.")
-TOLERANCE_NOTE = ("10 % is a common-practice default, not a published limit: set the loss you "
-                  "can accept before quantifying.")
-TWO_PASS_HELP = ("Two passes over the same stack, the second deepest-first (both stored "
-                 "surface first). Needs one-photon data; see docs/bleaching.md.")
 
 
-def _labels(layer: Any) -> list[str]:
-    return [str(label).strip().lower() for label in leading_axis_labels(layer)]
-
-
-def time_axis_of(layer: Any) -> int | None:
-    """Index of the layer's time axis: labelled t/time, else axis 0 of a 4-D layer."""
-    labels = _labels(layer)
-    for i, label in enumerate(labels):
-        if label in ("t", "time"):
-            return i
-    return 0 if layer.ndim >= 4 else None
-
-
-def depth_axis_of(layer: Any) -> int:
-    labels = _labels(layer)
-    for i, label in enumerate(labels):
-        if label in ("z", "depth"):
-            return i
-    return max(0, layer.ndim - 3)
-
-
-def truth_of(layer: Any) -> dict[str, Any]:
-    metadata = getattr(layer, "metadata", None) or {}
-    truth = metadata.get("truth") if isinstance(metadata, dict) else None
-    return truth if isinstance(truth, dict) else {}
-
-
-class BleachingWidget(TaskWidgetMixin, Container):
+class BleachingWidget(StackDock):
     """Check a time series (or one stack) for photobleaching; correct it; or separate it.
 
     Parameters
@@ -73,52 +40,65 @@ class BleachingWidget(TaskWidgetMixin, Container):
     napari_viewer : napari.Viewer
     """
 
-    failure_label = "verdict"
-    failure_prefix = "Could not check"
     title = "Bleaching check"
+    axis_role = "acquisition"
 
     def __init__(self, napari_viewer: "napari.Viewer") -> None:
-        super().__init__(labels=True)
-        self.viewer = napari_viewer
-        self.task = BackgroundTask(label=self.title)
         self.report: Any = None
+        self.checked: Any = None
         self.two_pass: Any = None
-        self.last_worker: Any = None
         self._report_key: Any = None
+        super().__init__(napari_viewer)
+        self.layer_combo.label = "Series or stack"
+        self.axis_combo.visible = False  # chosen through the acquisition axis below
+        self._add_canvas()
+        self.mode.changed.connect(self._on_mode)
+        self.axis_kind.changed.connect(self._on_axis_kind)
+        self.check_button.changed.connect(self.check)
+        self.correct_button.changed.connect(self.correct)
+        self._on_mode(self.mode.value)
+        self._on_layer_changed(self.layer_combo.value)
+
+    # ------------------------------------------------------------ building
+    @property
+    def interval(self) -> Any:
+        """The step along the acquisition axis (s between time points, or µm between slices)."""
+        return self.z_step
+
+    @property
+    def interval_hint(self) -> Any:
+        return self.z_hint
+
+    def _add_options(self) -> None:
         self.mode = ComboBox(label="Mode", choices=[("One series or stack", SINGLE),
                                                     ("Two passes (forward + reverse)", TWO_PASS)],
                              value=SINGLE)
-        self.layer_combo = ComboBox(label="Series or stack", choices=self._layer_choices)
         self.axis_kind = ComboBox(label="Acquisition axis",
                                   choices=[("time (time points)", "time"),
                                            ("z (slices of one stack)", "depth")])
-        self.interval = FloatSpinBox(label="Interval (s)", value=1.0, min=1e-6, max=1e7, step=1.0)
-        self.interval_hint = wrapped(Label(value=""))
-        self.tolerance = FloatSpinBox(label="Tolerance (% loss)", value=10.0, min=0.1, max=99.0,
-                                      step=1.0, tooltip=TOLERANCE_NOTE)
+        self.tolerance = FloatSpinBox(label="Tolerance (% loss)", value=DEFAULT_TOLERANCE * 100,
+                                      min=0.1, max=99.0, step=1.0, tooltip=TOLERANCE_NOTE)
         self.tolerance_note = wrapped(Label(value=TOLERANCE_NOTE))
-        self.method = ComboBox(label="Rescale frames by", choices=[
-            ("fitted decay", "model"), ("measured signal", "measured")], value="model")
+        self.method = ComboBox(label="Rescale frames by", choices=labelled(RESCALE_LABELS),
+                               value="model")
         self.forward_combo = ComboBox(label="Forward pass", choices=self._layer_choices)
         self.reverse_combo = ComboBox(label="Reverse pass", choices=self._layer_choices)
         self.two_pass_help = wrapped(Label(value=TWO_PASS_HELP))
         self.check_button = PushButton(text="Check")
         self.correct_button = PushButton(text="Correct (new layer)")
-        self.cancel_button = PushButton(text="Cancel", enabled=False)
         self.verdict = result_text(lines=5)
         self.caveat = result_text(lines=4)
-        self.caution = wrapped(Label(value=CAUTION))
-        self.extend([self.mode, self.layer_combo, self.axis_kind, self.interval,
-                     self.interval_hint, self.tolerance,
-                     self.tolerance_note, self.method, self.forward_combo, self.reverse_combo,
-                     self.two_pass_help, self.check_button, self.correct_button,
-                     self.cancel_button, self.verdict, self.caveat, self.caution])
-        self._add_canvas()
-        self._connect()
-        self._on_mode(self.mode.value)
-        self._on_layer(self.layer_combo.value)
+        self.caution = wrapped(Label(value=BLEACHING_CAVEAT + " The original layer is kept."))
+        self.insert(0, self.mode)
+        self.insert(3, self.axis_kind)
+        self.extend([self.tolerance, self.tolerance_note, self.method, self.forward_combo,
+                     self.reverse_combo, self.two_pass_help])
+        self.action_buttons += [self.check_button, self.correct_button]
 
-    # ------------------------------------------------------------ building
+    def _add_bottom(self) -> None:
+        self.extend([*self.action_buttons, self.cancel_button, self.status, self.verdict,
+                     self.caveat, self.caution])
+
     def _add_canvas(self) -> None:
         from matplotlib.backends.backend_qtagg import FigureCanvasQTAgg
         from matplotlib.figure import Figure
@@ -129,31 +109,10 @@ class BleachingWidget(TaskWidgetMixin, Container):
         self.canvas.setMinimumWidth(560)  # two panels side by side stay readable
         self.native.layout().addWidget(self.canvas)
 
-    def _connect(self) -> None:
-        self.mode.changed.connect(self._on_mode)
-        self.layer_combo.changed.connect(self._on_layer)
-        self.axis_kind.changed.connect(lambda *_: self._sync_interval())
-        self.check_button.changed.connect(self.check)
-        self.correct_button.changed.connect(self.correct)
-        self.cancel_button.changed.connect(self.task.cancel)
-        self.task.started.append(lambda: self._set_running(True))
-        self.task.finished.append(lambda: self._set_running(False))
-        connect_layer_events(self.viewer, self._refresh_layers)
-        self.native.destroyed.connect(self._disconnect_viewer)
-
-    def _layer_choices(self, _widget: Any = None) -> list[tuple[str, Any]]:
-        return [(layer.name, layer) for layer in image_layer_choices(self.viewer, min_ndim=3)]
-
-    def _refresh_layers(self, *_: Any) -> None:
-        before = self.layer_combo.value
-        for combo in (self.layer_combo, self.forward_combo, self.reverse_combo):
+    def _refresh_hook(self) -> None:
+        for combo in (self.forward_combo, self.reverse_combo):
             combo.reset_choices()
         self._pick_reverse()
-        if self.layer_combo.value is not before:
-            self._on_layer(self.layer_combo.value)
-
-    def _disconnect_viewer(self, *_: Any) -> None:
-        disconnect_layer_events(self.viewer, self._refresh_layers)
 
     def _pick_reverse(self) -> None:
         """Offer a second, different layer (preferably one named 'reverse') as reverse pass."""
@@ -170,10 +129,10 @@ class BleachingWidget(TaskWidgetMixin, Container):
     # ------------------------------------------------------------ reacting
     def _on_mode(self, mode: str) -> None:
         single = mode == SINGLE
-        for widget in (self.layer_combo, self.axis_kind, self.interval, self.method,
+        for widget in (self.layer_combo, self.axis_kind, self.z_step, self.override_z, self.method,
                        self.correct_button):
             widget.visible = single
-        self.interval_hint.visible = single and bool(self.interval_hint.value)
+        self.z_hint.visible = single and bool(self.z_hint.value)
         for widget in (self.forward_combo, self.reverse_combo, self.two_pass_help):
             widget.visible = not single
         if not single:
@@ -181,194 +140,158 @@ class BleachingWidget(TaskWidgetMixin, Container):
         self.verdict.value = ""
         self.caveat.value = ""
 
-    def _on_layer(self, layer: Any) -> None:
+    def _layer_changed_hook(self, layer: Any) -> None:
+        if not hasattr(self, "verdict"):
+            return
         if layer is None:
             self.verdict.value = "Open or pick a time series or z-stack (3 or more dimensions)."
             return
-        has_time = time_axis_of(layer) is not None
         with self.axis_kind.changed.blocked():
-            self.axis_kind.value = "time" if has_time else "depth"
-        self._sync_interval()
+            self.axis_kind.value = "time" if self.axis_letter() == "T" else "depth"
+        self.z_hint.visible = bool(self.z_hint.value) and self.mode.value == SINGLE
         self.verdict.value = ""
 
-    def _sync_interval(self) -> None:
-        layer = self.layer_combo.value
+    def _on_axis_kind(self, kind: str) -> None:
+        """Point the (hidden) axis picker at the time axis or the depth axis."""
+        layer = self.layer
         if layer is None:
             return
-        if self.axis_kind.value == "time":
-            self.interval.label = "Interval (s)"
-            axis = time_axis_of(layer)
-            value = truth_of(layer).get("interval_s")
-            if value is None and axis is not None:
-                value = float(layer.scale[axis])
-        else:
-            self.interval.label = "z-step (\u00b5m)"
-            value = float(layer.scale[depth_axis_of(layer)])
-        self.interval.value = float(value) if value and value > 0 else 1.0
-        axis = time_axis_of(layer) if self.axis_kind.value == "time" else depth_axis_of(layer)
-        units = getattr(layer, "units", None)
-        unit = str(units[axis]) if units is not None and axis is not None else "pixel"
-        if self.interval.value == 1.0 and unit in ("pixel", "px", ""):
-            what = "1 s between time points" if self.axis_kind.value == "time" else "1 \u00b5m z-step"
-            self.interval_hint.value = (f"The layer gives {what} (also the default when a file "
-                                        "has none): check it and type the real value.")
-        else:
-            self.interval_hint.value = ""
-        self.interval_hint.visible = bool(self.interval_hint.value) and self.mode.value == SINGLE
+        letters = layer_letters(layer)
+        letter = "T" if kind == "time" else "Z"
+        if letter in letters:
+            self.axis_combo.value = letters.index(letter)
+        self.z_hint.visible = bool(self.z_hint.value) and self.mode.value == SINGLE
 
-    def _set_running(self, running: bool) -> None:
-        self.check_button.enabled = not running
-        self.correct_button.enabled = not running
-        self.cancel_button.enabled = running
+    def _can_run(self, button: Any) -> bool:
+        return True
 
     # ------------------------------------------------------------ inputs
-    def _series(self) -> tuple[Any, Any, int, str, str]:
-        """(layer, data, axis, axis kind, note) of the single-series mode."""
-        layer = self.layer_combo.value
+    def _selection(self) -> tuple[Any, Any, str]:
+        """(layer, selection, note) of the single-series mode, checked on the GUI thread."""
+        from .._shared.validation import fail
+        from ..jobs import Selection, select
+
+        layer = self.layer
         if layer is None:
-            raise ValueError("Series or stack: expected an image layer, got none; open one first")
-        data = layer.data[0] if getattr(layer, "multiscale", False) else layer.data
-        kind = self.axis_kind.value
-        note = ""
-        if kind == "time":
-            axis = time_axis_of(layer)
-            if axis is None:
-                raise ValueError(f"Acquisition axis: expected a layer with a time axis, got "
-                                 f"{layer.ndim}-D '{layer.name}' without one; choose z")
-        else:
-            axis = depth_axis_of(layer)
-            t_axis = time_axis_of(layer)
-            if t_axis is not None and t_axis != axis:
-                step = int(self.viewer.dims.current_step[t_axis])
-                index = [slice(None)] * layer.ndim
-                index[t_axis] = step
-                data = data[tuple(index)]
-                axis -= 1 if t_axis < axis else 0
-                note = f" (time point {step})"
-        return layer, data, axis, kind, note
+            fail("Series or stack", "an image layer", "<none>", hint="open one first")
+        letters = layer_letters(layer)
+        stack = layer_stack(layer)
+        if self.axis_kind.value == "time":
+            if "T" not in letters:
+                fail("Acquisition axis", "a layer with a time axis",
+                     f"<{layer.ndim}-D '{layer.name}' without one>", hint="choose z")
+            return layer, Selection(stack), ""
+        if "T" in letters:
+            step = int(self.viewer.dims.current_step[letters.index("T")])
+            return layer, select(stack, time=step, several_channels="first"), f" (time point {step})"
+        return layer, Selection(stack), ""
 
-    def _options(self) -> dict[str, Any]:
-        from .._shared.validation import check_number
+    def _options(self, kind: str | None = None) -> Any:
+        from ..jobs import BleachingOptions
 
-        return {
-            "interval": check_number(float(self.interval.value), name="Interval", low=0,
-                                     low_open=True),
-            "tolerance": check_number(float(self.tolerance.value) / 100, name="Tolerance", low=0,
-                                      high=1, low_open=True, high_open=True),
-        }
+        return BleachingOptions(axis_kind=kind or self.axis_kind.value, interval=self.step_override(),
+                                tolerance=float(self.tolerance.value) / 100)
 
     # ------------------------------------------------------------ actions
     def check(self, *_: Any, start_thread: bool = True) -> Any:
         """Run the check (or the two-pass estimate); returns the napari worker."""
         if self.mode.value == TWO_PASS:
             return self.check_two_pass(start_thread=start_thread)
-        from ..kernels.bleaching import estimate_bleaching
+        from ..jobs import check_bleaching
 
         try:
-            layer, data, axis, kind, note = self._series()
+            layer, selection, note = self._selection()
             options = self._options()
         except ValueError as exc:
-            self._notify(exc)
+            self.notify_error(exc)
             return None
-        truth = truth_of(layer)
 
-        def job(progress: Callable[[int, int], None]) -> Any:
-            return estimate_bleaching(data, axis=axis, axis_kind=kind, progress=progress, **options)
+        def job(progress: Any) -> Any:
+            return check_bleaching(selection, options, progress=progress)
 
-        def show(report: Any) -> None:
-            self.report = report
-            self._report_key = (id(layer), axis, kind, tuple(sorted(options.items())))
-            self._show_report(report, layer, truth, note)
+        def show(checked: Any) -> None:
+            self._keep(checked, layer, options)
+            self._show_report(checked, layer, note)
 
-        return self._start(job, show, start_thread)
+        return self.run_job(job, show, start_thread=start_thread)
+
+    def _keep(self, checked: Any, layer: Any, options: Any) -> None:
+        self.checked, self.report = checked, checked.report
+        self._report_key = (id(layer), self.axis_kind.value, options)
 
     def correct(self, *_: Any, start_thread: bool = True) -> Any:
         """Add a bleaching-corrected copy of the picked layer; returns the napari worker."""
-        from ..kernels.bleaching import correct_bleaching, estimate_bleaching
+        from ..jobs import check_bleaching, correct_checked
 
         try:
-            layer, data, axis, kind, _ = self._series()
+            layer, selection, note = self._selection()
             options = self._options()
         except ValueError as exc:
-            self._notify(exc)
+            self.notify_error(exc)
             return None
-        if data is not (layer.data[0] if getattr(layer, "multiscale", False) else layer.data):
-            self._notify(ValueError("Correct: expected a series along time or a single z-stack, "
-                                    "got one time point of a series; check it along time"))
+        if note:
+            self.notify_error(ValueError("Correct: expected a series along time or a single "
+                                         "z-stack, got one time point of a series; check it "
+                                         "along time"))
             return None
-        key = (id(layer), axis, kind, tuple(sorted(options.items())))
-        cached = self.report if key == self._report_key else None
-        method = self.method.value
+        key = (id(layer), self.axis_kind.value, options)
+        cached = self.checked if key == self._report_key else None
+        rescale = self.method.value
 
-        def job(progress: Callable[[int, int], None]) -> Any:
-            report = cached or estimate_bleaching(data, axis=axis, axis_kind=kind,
-                                                  progress=progress, **options)
-            return report, correct_bleaching(data, report, rescale=method, axis=axis,
-                                             progress=progress)
+        def job(progress: Any) -> Any:
+            checked = cached or check_bleaching(selection, options, progress=progress)
+            return checked, correct_checked(checked, rescale=rescale, progress=progress)
 
         def show(result: Any) -> None:
-            report, corrected = result
-            self.report, self._report_key = report, key
-            self._show_report(report, layer, truth_of(layer), "")
-            extra = {}
-            if getattr(layer, "units", None) is not None:
-                extra["units"] = tuple(str(u) for u in layer.units)
-            if getattr(layer, "axis_labels", None) is not None:
-                extra["axis_labels"] = tuple(str(a) for a in layer.axis_labels)
-            self.corrected_layer = self.viewer.add_image(
-                corrected, name=f"{layer.name} bleaching-corrected", **same_geometry(layer), **extra,
+            checked, corrected = result
+            self._keep(checked, layer, options)
+            self._show_report(checked, layer, "")
+            self.corrected_layer = self.add_result(
+                corrected.data, corrected.geometry, source=layer,
+                name=f"{layer.name} bleaching-corrected",
                 colormap=getattr(layer.colormap, "name", "gray"),
                 contrast_limits=tuple(float(v) for v in layer.contrast_limits),
-                metadata={"stackdepth": {"bleaching_correction": method,
-                                         "summary": report.summary,
-                                         "note": CAUTION, "source": layer.name}})
+                metadata={"stackdepth": in_dock_words(corrected.provenance)})
 
-        return self._start(job, show, start_thread)
+        return self.run_job(job, show, start_thread=start_thread)
 
     def check_two_pass(self, *, start_thread: bool = True) -> Any:
-        from ..kernels.bleaching import separate_bleaching
+        """Separate bleaching from attenuation with the two picked passes."""
+        from ..jobs import Selection, separate_passes
 
         forward, reverse = self.forward_combo.value, self.reverse_combo.value
         if forward is None or reverse is None or forward is reverse:
-            self._notify(ValueError("Reverse pass: expected a second layer, different from the "
-                                    "forward pass; add both passes"))
+            self.notify_error(ValueError("Reverse pass: expected a second layer, different from "
+                                         "the forward pass; add both passes"))
             return None
-        try:
-            tolerance = self._options()["tolerance"]
-        except ValueError as exc:
-            self._notify(exc)
-            return None
-        z_axis = depth_axis_of(forward)
-        z_step = float(forward.scale[z_axis])
-        fwd_data, rev_data = forward.data, reverse.data
-        truth = truth_of(forward) or truth_of(reverse)
+        tolerance = float(self.tolerance.value) / 100
+        fwd, rev = Selection(layer_stack(forward)), Selection(layer_stack(reverse))
+        truth = fwd.stack.truth or rev.stack.truth or {}
 
-        def job(progress: Callable[[int, int], None]) -> Any:
-            return separate_bleaching(fwd_data, rev_data, z_step=z_step, axis=z_axis,
-                                      progress=progress)
+        def job(progress: Any) -> Any:
+            return separate_passes(fwd, rev, tolerance=tolerance, progress=progress)
 
-        def show(result: Any) -> None:
+        def show(two: Any) -> None:
             from ..plots.bleaching import two_pass_figure
 
-            self.two_pass = result
-            verdict = "exceeds" if result.fraction_lost > tolerance else "is within"
-            text = (f"{result.summary} That loss {verdict} the {tolerance * 100:.3g} % "
-                    "tolerance.")
+            self.two_pass = two.result
+            text = f"{two.result.summary} {two.verdict}"
             if "bleach_rate_per_exposure" in truth:
                 text += (f" Demo truth: {truth['bleach_rate_per_exposure'] * 100:.3g} % per "
                          f"exposure, {truth.get('attenuation_length_um', math.nan):.3g} \u00b5m.")
             self.verdict.value = text
-            self.caveat.value = result.caveat
-            two_pass_figure(result, truth=truth, figure=self.figure)
+            self.caveat.value = two.result.caveat
+            two_pass_figure(two.result, truth=truth, figure=self.figure)
             self.canvas.draw_idle()
 
-        return self._start(job, show, start_thread)
+        return self.run_job(job, show, start_thread=start_thread)
 
-    def _show_report(self, report: Any, layer: Any, truth: dict[str, Any], note: str) -> None:
+    def _show_report(self, checked: Any, layer: Any, note: str) -> None:
         from ..plots.bleaching import bleaching_figure
 
-        rate_key = "bleach_rate_per_frame" if report.axis_kind == "time" else None
-        truth_rate = truth.get(rate_key) if rate_key else None
+        report = checked.report
+        truth = checked.selection.stack.truth or {}
+        truth_rate = truth.get("bleach_rate_per_frame") if report.axis_kind == "time" else None
         text = f"{layer.name}{note}: {report.summary}"
         if truth_rate is not None:
             text += f" Demo truth: {truth_rate * 100:.3g} % per frame."

@@ -1,28 +1,96 @@
-"""The three projection dock widgets: depth colour, peak depth map, occlusion.
+"""The three projection docks: depth colour, peak depth map, occlusion.
 
-They only translate between layers and the kernels in
-:mod:`viewer_plugin.kernels.projection`: every result is a new layer, the
-source layer and its data are never changed, and whole-stack work runs off
-the GUI thread through :class:`~viewer_plugin.widgets._runner.BackgroundTask`.
+They only translate between layers and :func:`viewer_plugin.jobs.project_stack`:
+every result is a new layer, the source layer and its data are never changed,
+and whole-stack work runs off the GUI thread.
 """
 
 from __future__ import annotations
 
-from typing import Any, Callable
+import dataclasses
+from typing import Any
 
 import numpy as np
-from magicgui.widgets import CheckBox, ComboBox, FloatSpinBox, Label
+from magicgui.widgets import CheckBox, ComboBox, FloatSpinBox, Label, PushButton
 
-from ._proj_base import ProjectionWidget, span_depth
-from ._proj_colour import DepthColourWidget
+from ..jobs.choices import COLOUR_MAPS, DEFAULT_CMAP, OCCLUSION_NOTE
+from ._dock import StackDock, in_dock_words, layer_stack
 
-__all__ = ["DepthColourWidget", "OcclusionWidget", "PeakDepthWidget"]
+__all__ = ["DepthColourWidget", "OcclusionWidget", "PeakDepthWidget", "ProjectionDock"]
 
-#: Colour maps offered for depth maps: perceptually uniform first, rainbow-like last.
-DEPTH_MAP_COLOURS = ("viridis", "cividis", "plasma", "inferno", "magma", "turbo")
+#: Colour maps of the depth map and the occlusion colour, from the shared list (no rainbow maps).
+DEPTH_MAP_COLOURS = tuple(name for label, name in COLOUR_MAPS if "rainbow" not in label)
 
 
-class PeakDepthWidget(ProjectionWidget):
+class ProjectionDock(StackDock):
+    """Base of the projection docks: a Compute button running the projection job."""
+
+    title = "Projection"
+
+    def __init__(self, napari_viewer: Any) -> None:
+        self.projected: Any = None
+        self.compute_button = PushButton(text="Compute")
+        super().__init__(napari_viewer)
+        self.compute_button.changed.connect(self.compute)
+        from ._warm import start_warm_up
+
+        start_warm_up()
+
+    def _add_options(self) -> None:
+        self.action_buttons.append(self.compute_button)
+
+    def _projection_options(self, layer: Any) -> Any:
+        """The job's options from the dock's widgets (GUI thread)."""
+        raise NotImplementedError
+
+    def _show(self, layer: Any, projected: Any) -> None:
+        """Add the result's layers (GUI thread)."""
+        raise NotImplementedError
+
+    @property
+    def result(self) -> Any:
+        """The kernel result of the last full computation (None before)."""
+        return None if self.projected is None else self.projected.result
+
+    @property
+    def result_info(self) -> dict[str, Any]:
+        """Provenance of the last full computation, in the dock's words."""
+        return {} if self.projected is None else in_dock_words(self.projected.provenance)
+
+    def job_inputs(self) -> tuple[Any, Any, int] | None:
+        """(layer, options, depth axis) checked on the GUI thread; None after a notification."""
+        layer = self.layer
+        if layer is None:
+            self.notify_error(ValueError("Stack: expected a z-stack, got none; open one first"))
+            return None
+        try:
+            options = dataclasses.replace(self._projection_options(layer), z_step=self.step_override())
+        except ValueError as exc:
+            self.notify_error(exc)
+            return None
+        return layer, options, int(self.axis_combo.value)
+
+    def compute(self, *_: Any, start_thread: bool = True) -> Any:
+        """Run the full projection of the picked stack; returns the napari worker."""
+        from ..jobs import Selection, project_stack
+
+        inputs = self.job_inputs()
+        if inputs is None:
+            return None
+        layer, options, axis = inputs
+        selection = Selection(layer_stack(layer))
+
+        def job(progress: Any) -> Any:
+            return project_stack(selection, options, depth_axis=axis, progress=progress)
+
+        def show(projected: Any) -> None:
+            self.projected = projected
+            self._show(layer, projected)
+
+        return self.run_job(job, show, start_thread=start_thread)
+
+
+class PeakDepthWidget(ProjectionDock):
     """Maximum-intensity projection plus the depth (µm) of each maximum.
 
     Adds two layers: ``"<source> peak"`` (the input dtype) and
@@ -34,55 +102,50 @@ class PeakDepthWidget(ProjectionWidget):
 
     def _add_options(self) -> None:
         self.depth_cmap = ComboBox(label="Depth map colours", choices=list(DEPTH_MAP_COLOURS),
-                                   value="viridis")
+                                   value=DEFAULT_CMAP)
         self.hide_background = CheckBox(
-            text="Blank depth where max \u2264 lower contrast limit", value=False,
-            tooltip="Pixels whose maximum is at or below the layer's lower contrast limit get no "
-                    "depth (NaN): their 'depth' would only be the depth of the brightest noise")
+            text="Blank depth where peak \u2264 lower contrast limit", value=False,
+            tooltip="Pixels whose peak is at or below the layer's lower contrast limit get no "
+                    "depth (NaN): their 'depth' would only be the depth of the strongest noise")
         self.note = Label(value="Depth is measured from the first slice (0 \u00b5m); "
                                 "ties go to the shallowest slice.")
         self.extend([self.depth_cmap, self.hide_background, self.note])
+        super()._add_options()
 
-    def _options(self, layer: Any) -> dict[str, Any]:
-        low = float(layer.contrast_limits[0])
-        return {"cmap": self.depth_cmap.value,
-                "blank_below": low if self.hide_background.value else None,
-                "contrast_limits": tuple(float(v) for v in layer.contrast_limits),
-                "colormap": getattr(layer.colormap, "name", "gray")}
+    def _projection_options(self, layer: Any) -> Any:
+        from ..jobs import ProjectionOptions
 
-    def _job(self, data: Any, axis: int, z_step: float, options: dict[str, Any],
-             progress: Callable[[int, int], None]) -> Any:
-        from ..kernels.projection import peak_projection
+        return ProjectionOptions(method="max")
 
-        result = peak_projection(data, axis=axis, z_step=z_step, progress=progress)
-        values = np.asarray(result.peak)
-        depth_um = np.array(result.depth_um)
-        if options["blank_below"] is not None:
-            depth_um[values <= options["blank_below"]] = np.nan
-        return values, depth_um
-
-    def _show(self, layer: Any, axis: int, z_step: float, options: dict[str, Any], result: Any) -> None:
-        values, depth_um = result
-        deepest = max(float(z_step) * (layer.data.shape[axis] - 1), float(z_step))
-        lo, hi = options["contrast_limits"]
-        self.max_layer = self.add_result(values, layer, axis, name=f"{layer.name} peak",
-                                         colormap=options["colormap"],
-                                         contrast_limits=(lo, hi) if hi > lo else None)
+    def _show(self, layer: Any, projected: Any) -> None:
+        result, axis = projected.result, projected.provenance["depth_axis"]
+        geometry = projected.geometry
+        depth_um = np.asarray(result.depth_um)
+        low, high = (float(v) for v in layer.contrast_limits)
+        if self.hide_background.value:
+            depth_um = np.where(np.asarray(result.peak) <= low, np.float32(np.nan), depth_um)
+        z_step = projected.provenance["z_step_um"]
+        deepest = max(z_step * (int(layer.data.shape[axis]) - 1), z_step)
+        self.max_layer = self.add_result(
+            result.peak, geometry, source=layer, depth_axis=axis, name=f"{layer.name} peak",
+            colormap=getattr(layer.colormap, "name", "gray"),
+            contrast_limits=(low, high) if high > low else None)
         self.depth_layer = self.add_result(
-            depth_um, layer, axis, name=f"{layer.name} peak depth (\u00b5m)",
-            colormap=options["cmap"], contrast_limits=(0.0, deepest),
-            metadata={"stackdepth": {"quantity": "depth of the strongest voxel", "unit": "\u00b5m",
-                                     "z_step_um": z_step, "depth_axis": axis,
+            depth_um, geometry, source=layer, depth_axis=axis,
+            name=f"{layer.name} peak depth (\u00b5m)", colormap=self.depth_cmap.value,
+            contrast_limits=(0.0, deepest),
+            metadata={"stackdepth": {**in_dock_words(projected.provenance), "quantity":
+                                     "depth of the strongest voxel", "unit": "\u00b5m",
                                      "origin": "first slice = 0 \u00b5m"}})
         self.depth_layer.colorbar.visible = True
         self.status.value = (f"Added '{self.max_layer.name}' and '{self.depth_layer.name}' "
                              f"(0\u2013{deepest:g} \u00b5m)")
 
 
-class OcclusionWidget(ProjectionWidget):
-    """Emission–absorption (front-to-back 'over') projection, plus optional side views.
+class OcclusionWidget(ProjectionDock):
+    """Emission–absorption rendering (front-to-back "over"), plus optional side views.
 
-    Nearer structures partly hide deeper ones. Side views project along y and
+    Nearer structures partly hide deeper ones. Side views look along y and
     along x with depth vertical; their layer scale uses the z-step so they are
     geometrically right, and they are placed below the top view.
     """
@@ -104,112 +167,77 @@ class OcclusionWidget(ProjectionWidget):
             (f"depth ({name})", name) for name in DEPTH_MAP_COLOURS[:5]], value=None,
             tooltip="Grey, or each slice emits the colour of its depth (top and side views)")
         self.side_views = CheckBox(text="Side views along y and along x", value=False)
-        self.note = Label(value="A rendering for looking, not for measuring: "
-                                "its brightness is not an intensity.")
+        self.note = Label(value=OCCLUSION_NOTE)
         self.extend([self.auto_density, self.density, self.view, self.auto_contrast,
                      self.colour, self.side_views, self.note])
         self.auto_density.changed.connect(lambda v: setattr(self.density, "enabled", not v))
+        super()._add_options()
 
     def _options(self, layer: Any) -> dict[str, Any]:
-        from .._shared.validation import check_number
+        """The rendering's options; the density is the kernel's default unless set by hand."""
+        from ..kernels.projection import default_density
 
-        density = None
-        if not self.auto_density.value:
-            density = check_number(self.density.value, name="density", low=0.0, low_open=True)
-        clim = None if self.auto_contrast.value else tuple(float(v) for v in layer.contrast_limits)
-        pixel = (float(layer.scale[-2]), float(layer.scale[-1]))
-        if density is None:  # the kernel's default for the depth axis, reused for the side views
-            from ..kernels.projection import DEFAULT_OPTICAL_DEPTH
-
+        if self.auto_density.value:
             axis = int(self.axis_combo.value)
-            density = DEFAULT_OPTICAL_DEPTH / (layer.data.shape[axis] * self.current_z_step())
-        return {"density": density, "clim": clim, "view": self.view.value, "cmap": self.colour.value,
-                "side_views": bool(self.side_views.value), "pixel": pixel}
-
-    def _job(self, data: Any, axis: int, z_step: float, options: dict[str, Any],
-             progress: Callable[[int, int], None]) -> Any:
-        from ..kernels.projection import depth_colours, display_limits, occlusion_projection
-
-        passes = 3 if options["side_views"] else 1
-
-        def part(k: int) -> Callable[[int, int], None]:
-            return lambda done, total: progress(k * total + done, passes * total)
-
-        clim = options["clim"]
-        if clim is None and options["side_views"]:  # one contrast for all three views
-            clim = display_limits(data, axis=axis)
-        common = {"density": options["density"], "clim": clim}
-        top = occlusion_projection(data, z_step=z_step, view=options["view"], axis=axis,
-                                 cmap=options["cmap"], progress=part(0), **common)
-        sides = []
-        if options["side_views"]:
-            others = [i for i in range(data.ndim) if i != axis][-2:]
-            colours = None
-            if options["cmap"] is not None:
-                # a side-view ray runs at one depth: its colour is that depth's colour
-                colours = depth_colours(data.shape[axis], z_step=z_step, cmap=options["cmap"])
-                colours = colours.astype(np.float32)[:, None, :]
-            for k, side_axis in enumerate(others, start=1):
-                step = options["pixel"][k - 1]
-                view = occlusion_projection(data, z_step=step, view="top", axis=side_axis,
-                                          progress=part(k), **common)
-                depth_pos = axis if axis < side_axis else axis - 1
-                view = np.moveaxis(np.asarray(view), depth_pos, -2)
-                sides.append(view if colours is None else view[..., None] * colours)
-        return np.asarray(top), sides
-
-    def _show(self, layer: Any, axis: int, z_step: float, options: dict[str, Any], result: Any) -> None:
-        top, sides = result
-        name = f"{layer.name} occlusion ({options['view']})"
-        meta = {"stackdepth": {"density_per_um": options["density"], "view": options["view"],
-                               "clim": options["clim"], "z_step_um": z_step,
-                               "note": "a rendering, not a measurement"}}
-        if top.ndim == layer.ndim:  # RGB: coloured by depth
-            self.top_layer = self.add_result(top, layer, axis, name=name, rgb=True, metadata=meta)
+            density = default_density(int(layer.data.shape[axis]), self.step_value())
         else:
-            self.top_layer = self.add_result(top, layer, axis, name=name, colormap="gray",
-                                             contrast_limits=(0.0, max(float(np.nanmax(top)), 1e-6)),
-                                             metadata=meta)
-        names = [self.top_layer.name]
-        self.side_layers = []
-        if sides:
-            # one display scale for the three views, so brightness compares across them
-            high = max([float(np.nanmax(v)) for v in (top, *sides)] + [1e-6])
-            self.top_layer.contrast_limits = (0.0, high)
-            display: dict[str, Any] = {"contrast_limits": (0.0, high)}
-            display.update({"rgb": True} if top.ndim == layer.ndim else {"colormap": "gray"})
-            for which, view in zip(("y", "x"), sides):
-                self.side_layers.append(self._add_side(layer, axis, z_step, which, view, display))
-                names.append(self.side_layers[-1].name)
+            density = float(self.density.value)
+        clim = None if self.auto_contrast.value else tuple(float(v) for v in layer.contrast_limits)
+        return {"density": density, "clim": clim, "view": self.view.value,
+                "cmap": self.colour.value, "side_views": bool(self.side_views.value)}
+
+    def _projection_options(self, layer: Any) -> Any:
+        from ..jobs import ProjectionOptions
+
+        return ProjectionOptions(method="occlusion", **self._options(layer))
+
+    def _show(self, layer: Any, projected: Any) -> None:
+        top = np.asarray(projected.result)
+        rgb = projected.rgb is not None
+        info = in_dock_words(projected.provenance)
+        display: dict[str, Any] = {"rgb": True} if rgb else {"colormap": "gray"}
+        high = max([float(np.nanmax(v)) for v in (top, *(s.image for s in projected.side_views))]
+                   + [1e-6])
+        if not rgb:  # one display scale for all views, so brightness compares across them
+            display["contrast_limits"] = (0.0, high)
+        geometry = projected.geometry.with_samples() if rgb else projected.geometry
+        self.top_layer = self.add_result(
+            top, geometry, source=layer, depth_axis=info["depth_axis"],
+            name=f"{layer.name} occlusion ({info['view']})", metadata={"stackdepth": info},
+            **display)
+        self.side_layers = [self._add_side(layer, side, display) for side in projected.side_views]
+        names = [self.top_layer.name] + [s.name for s in self.side_layers]
         self.status.value = ("Added " + ", ".join(f"'{n}'" for n in names)
-                             + f" (density {options['density']:.3g}/\u00b5m)")
+                             + f" (density {info['density_per_um']:.3g}/\u00b5m)")
 
-    def _add_side(self, layer: Any, axis: int, z_step: float, along: str, view: np.ndarray,
-                  display: dict[str, Any]) -> Any:
-        """Add a side view below the top view; depth vertical, scale z-step × pixel size.
+    def _add_side(self, layer: Any, side: Any, display: dict[str, Any]) -> Any:
+        """Add a side view below (along y) or below and right of (along x) the top view."""
+        from ..jobs import Geometry
 
-        *view* is grey (rows = depth) or RGB with a last axis of 3; *display*
-        holds the napari display options (``rgb`` or colormap and contrast).
-        """
-        others = [i for i in range(layer.ndim) if i != axis]
-        y_axis, x_axis = others[-2], others[-1]
-        lead = others[:-2]
-        across = x_axis if along == "y" else y_axis
+        axis = int(self.axis_combo.value)
+        lateral = [i for i in range(layer.ndim) if i != axis][-2:]
+        y_axis, x_axis = lateral
         ty, tx = float(layer.translate[y_axis]), float(layer.translate[x_axis])
         height = layer.data.shape[y_axis] * float(layer.scale[y_axis])
         width = layer.data.shape[x_axis] * float(layer.scale[x_axis])
         gap = 0.05 * max(height, width)
-        left = tx if along == "y" else tx + width + gap
-        # the side view's rows (depth) and columns are drawn on the viewer's y and x axes
-        geometry: dict[str, Any] = {
-            "scale": [float(layer.scale[i]) for i in lead] + [z_step, float(layer.scale[across])],
-            "translate": [float(layer.translate[i]) for i in lead] + [ty + height + gap, left],
-            "axis_labels": [str(layer.axis_labels[i]) for i in lead]
-            + [str(layer.axis_labels[axis]), str(layer.axis_labels[across])],
-        }
-        if getattr(layer, "units", None) is not None:
-            geometry["units"] = [str(layer.units[i]) for i in (*lead, axis, across)]
-        if lead:  # keep time/channel axes lined up with the source (see span_depth)
-            view, geometry = span_depth(view, layer, len(lead), geometry)
-        return self.viewer.add_image(view, name=f"{layer.name} occlusion side (along {along})",
-                                     **display, **geometry)
+        left = tx if side.along == layer_letter(layer, y_axis) else tx + width + gap
+        geometry = side.geometry
+        n_lead = len(geometry.axes) - 2
+        placed = Geometry(geometry.axes, geometry.scale,
+                          geometry.translate[:n_lead] + (ty + height + gap, left))
+        if display.get("rgb"):
+            placed = placed.with_samples()
+        return self.add_result(side.image, placed, source=layer,
+                               depth_axis=axis if n_lead else None,
+                               name=f"{layer.name} occlusion side (along {side.along})", **display)
+
+
+def layer_letter(layer: Any, axis: int) -> str:
+    """The lower-case axis letter of *layer*'s axis number *axis*."""
+    from ._dock import layer_letters
+
+    return layer_letters(layer)[axis].lower()
+
+
+from .depth_colour import DepthColourWidget  # noqa: E402  (the manifest names it here)

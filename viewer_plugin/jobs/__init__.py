@@ -1,0 +1,57 @@
+"""One function per user job, shared by the command line and the docks.
+
+Between the kernels and the front-ends: each job takes a
+:class:`~viewer_plugin._shared.stack.Stack` (picked with :func:`select`) and
+options, and returns the kernel's result together with the geometry of every
+output and its provenance. ``commands/`` and ``widgets/`` only translate
+arguments and widgets into these calls and show or write what comes back;
+the choice lists, defaults and caution texts they show are in
+:mod:`.choices`.
+
+* :func:`project_stack`, :func:`write_figure` -- projections and figures;
+* :func:`measure_attenuation`, :func:`correct_measured` -- depth attenuation;
+* :func:`check_bleaching`, :func:`correct_checked`, :func:`equalise_checked`,
+  :func:`separate_passes` -- bleaching.
+"""
+
+from .attenuation import AttenuationOptions, Measured, attenuation_record, correct_measured, measure_attenuation
+from .bleaching import (
+    BleachingOptions,
+    Checked,
+    TwoPass,
+    bleaching_record,
+    check_bleaching,
+    correct_checked,
+    equalise_checked,
+    separate_passes,
+)
+from .figure import figure_plane, write_figure
+from .projection import ProjectionOptions, Projected, SideView, project_stack
+from .stack import Corrected, Geometry, Selection, geometry_of, select
+
+__all__ = [
+    "AttenuationOptions",
+    "BleachingOptions",
+    "Checked",
+    "Corrected",
+    "Geometry",
+    "Measured",
+    "Projected",
+    "ProjectionOptions",
+    "Selection",
+    "SideView",
+    "TwoPass",
+    "attenuation_record",
+    "bleaching_record",
+    "check_bleaching",
+    "correct_checked",
+    "correct_measured",
+    "equalise_checked",
+    "figure_plane",
+    "geometry_of",
+    "measure_attenuation",
+    "project_stack",
+    "select",
+    "separate_passes",
+    "write_figure",
+]

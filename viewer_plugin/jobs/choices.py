@@ -1,0 +1,121 @@
+"""Choice lists, defaults and caution texts, written once for the command line and the docks.
+
+argparse (``commands/``) and magicgui (``widgets/``) read their choices,
+defaults, help texts and cautions from here; the kernels own the method names
+themselves and this module only adds the words a user reads.
+"""
+
+from __future__ import annotations
+
+from ..kernels.attenuation import CAUTION as ATTENUATION_CAVEAT
+from ..kernels.attenuation import MODELS as ATTENUATION_MODELS
+from ..kernels.bleaching import RESCALE
+from ..kernels.bleaching.text import DEPTH_CAVEAT, TWO_PASS_CAVEAT
+from ..kernels.projection import METHODS as DEPTH_CODED
+from ..kernels.projection import VIEWS
+
+__all__ = [
+    "ATTENUATION_CAVEAT",
+    "ATTENUATION_MODELS",
+    "ATTENUATION_MODEL_LABELS",
+    "BLEACHING_CAVEAT",
+    "COLOUR_MAPS",
+    "DEFAULT_CMAP",
+    "DEFAULT_MAX_GAIN",
+    "DEFAULT_METHOD",
+    "DEFAULT_TOLERANCE",
+    "DEPTH_CAVEAT",
+    "DEPTH_CODED",
+    "EQUALISE_NOTE",
+    "METHOD_LABELS",
+    "METHOD_WORDS",
+    "OCCLUSION_NOTE",
+    "PROJECTION_CAVEAT",
+    "PROJECTION_METHODS",
+    "RESCALE",
+    "RESCALE_LABELS",
+    "TOLERANCE_NOTE",
+    "TWO_PASS_CAVEAT",
+    "TWO_PASS_HELP",
+    "VIEWS",
+    "labelled",
+]
+
+# --- projections -------------------------------------------------------------------------
+
+#: Every projection the command line and the docks offer: the depth-coded methods of
+#: :func:`~viewer_plugin.kernels.depth_coded_projection`, the occlusion rendering and the
+#: plain maximum-intensity projection (with the depth of each maximum).
+PROJECTION_METHODS = DEPTH_CODED + ("occlusion", "max")
+DEFAULT_METHOD = "peak"
+
+#: What each method shows, as a dock label.
+METHOD_LABELS = {
+    "peak": "peak: depth of the strongest voxel",
+    "weighted": "weighted: intensity-weighted mean depth",
+    "tinted": "tinted: slices tinted by depth, then maximum",
+    "occlusion": "occlusion: nearer structures partly hide deeper ones",
+    "max": "max: maximum-intensity projection and its depth",
+}
+
+#: What each method shows, in the words of a methods section.
+METHOD_WORDS = {
+    "peak": "each pixel shows the depth of its strongest voxel along the optical axis, "
+            "with brightness from that voxel's intensity",
+    "weighted": "each pixel shows the intensity-weighted mean depth of the voxels along the "
+                "optical axis, with brightness from the maximum intensity",
+    "tinted": "every slice was tinted with the colour of its depth and the tinted slices were "
+              "combined by maximum-intensity projection",
+    "occlusion": "the stack was rendered with an emission-absorption model (nearer structures "
+                 "partly hide deeper ones); this is a rendering, not a measurement",
+    "max": "each pixel shows the maximum intensity along the optical axis",
+}
+
+#: Colour maps for depth, as (label, matplotlib name): perceptually uniform and
+#: colour-vision-deficiency friendly maps first, rainbow-like ones last and marked.
+COLOUR_MAPS = (
+    ("viridis", "viridis"),
+    ("cividis (for red\u2013green colour-blindness)", "cividis"),
+    ("plasma", "plasma"),
+    ("inferno", "inferno"),
+    ("magma", "magma"),
+    ("turbo (rainbow-like)", "turbo"),
+    ("gist_rainbow (rainbow-like)", "gist_rainbow"),
+    ("hsv (rainbow-like, cyclic)", "hsv"),
+)
+DEFAULT_CMAP = "viridis"
+
+PROJECTION_CAVEAT = ("Colour = depth below the first slice; brightness = display contrast, "
+                     "relative and not calibrated.")
+OCCLUSION_NOTE = ("A rendering for looking, not for measuring: its brightness is not an "
+                  "intensity.")
+
+# --- attenuation ---------------------------------------------------------------------------
+
+ATTENUATION_MODEL_LABELS = {
+    "exponential": "exponential: Beer\u2013Lambert fit",
+    "smooth": "smooth: follows any smooth profile",
+    "quantile": "quantile: maps every slice's quantiles onto the first slice's",
+}
+DEFAULT_MAX_GAIN = 10.0
+
+# --- bleaching -----------------------------------------------------------------------------
+
+RESCALE_LABELS = {
+    "model": "fitted decay",
+    "measured": "measured signal",
+}
+DEFAULT_TOLERANCE = 0.10
+TOLERANCE_NOTE = ("10 % is a common-practice default, not a published limit: set the loss you "
+                  "can accept before quantifying.")
+BLEACHING_CAVEAT = ("Corrected intensities are relative, not calibrated; correction amplifies "
+                    "the noise of late (faded) frames.")
+EQUALISE_NOTE = ("Equalise contrast to frame 0 (for display and segmentation, not for "
+                 "intensities): histogram specification changes the relation between "
+                 "intensities.")
+TWO_PASS_HELP = ("Two passes over the same stack, the second deepest-first (both stored "
+                 "surface first). Needs one-photon data; see docs/bleaching.md.")
+
+def labelled(labels: dict[str, str], names: tuple[str, ...] | None = None) -> list[tuple[str, str]]:
+    """(label, name) pairs for a dock's drop-down, in the order of *names* (default: *labels*)."""
+    return [(labels[name], name) for name in (names or tuple(labels))]

@@ -1,0 +1,258 @@
+"""The projection job: one function for the command line and the three projection docks."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from .._shared.progress import Progress, sub_progress
+from .._shared.validation import check_choice, fail, is_dask
+from .choices import DEFAULT_CMAP, DEPTH_CODED, PROJECTION_METHODS
+from .provenance import provenance
+from .stack import Geometry, Selection, axis_step, describe_voxel, drop_axis, geometry_of
+
+__all__ = ["ProjectionOptions", "Projected", "SideView", "project_stack"]
+
+
+@dataclass(frozen=True)
+class ProjectionOptions:
+    """What to project and how (the command line's options, the dock's widgets).
+
+    Attributes
+    ----------
+    method : str
+        One of :data:`~viewer_plugin.jobs.choices.PROJECTION_METHODS`.
+    cmap : str or None
+        Colour map of depth (depth-coded methods; default
+        :data:`~viewer_plugin.jobs.choices.DEFAULT_CMAP`); for "occlusion" a
+        colour map makes each slice emit the colour of its depth (None: grey).
+    depth_range : (float, float) or None
+        Depths in µm at the two ends of the colour map (default: whole stack).
+    clim : (float, float) or None
+        Display limits in input units (default: automatic percentiles).
+    gamma : float
+        Brightness exponent (depth-coded methods).
+    density : float or None
+        Occlusion: extinction per µm of a fully bright voxel (default from the depth).
+    view : str
+        Occlusion: "top" (first slice in front) or "bottom".
+    side_views : bool
+        Occlusion: also render the views along the two lateral axes.
+    z_step : float or None
+        Slice spacing in µm; None takes it from the stack's scale.
+    """
+
+    method: str = "peak"
+    cmap: str | None = None
+    depth_range: tuple[float, float] | None = None
+    clim: tuple[float, float] | None = None
+    gamma: float = 1.0
+    density: float | None = None
+    view: str = "top"
+    side_views: bool = False
+    z_step: float | None = None
+
+
+@dataclass(frozen=True)
+class SideView:
+    """An occlusion view along one lateral axis: depth runs down the rows."""
+
+    along: str
+    image: np.ndarray
+    geometry: Geometry
+
+
+@dataclass(frozen=True)
+class Projected:
+    """What :func:`project_stack` returns.
+
+    Attributes
+    ----------
+    method : str
+    result : object
+        The kernel's result: a ``PeakProjection`` ("max"), a
+        ``DepthCodedProjection`` (depth-coded methods) or an ndarray ("occlusion").
+    geometry : Geometry
+        Axes and µm scale of the projected image (without RGB samples).
+    provenance : dict
+        Everything needed to make it again (stored in files, sidecars, layers).
+    side_views : tuple of SideView
+        Occlusion views along y and x, when asked for.
+    notes : tuple of str
+        Warnings the user should see (e.g. a voxel size that looks like a default).
+    """
+
+    method: str
+    result: Any
+    geometry: Geometry
+    provenance: dict[str, Any]
+    side_views: tuple[SideView, ...] = ()
+    notes: tuple[str, ...] = field(default_factory=tuple)
+
+    @property
+    def rgb(self) -> np.ndarray | None:
+        """The RGB image in [0, 1] (float32, last axis 3), or None for grey results."""
+        if self.method in DEPTH_CODED:
+            return np.asarray(self.result.rgb)
+        if self.method == "occlusion" and np.ndim(self.result) == len(self.geometry.axes) + 1:
+            return np.asarray(self.result)
+        return None
+
+    def file_image(self) -> tuple[np.ndarray, Geometry]:
+        """The image to write to a file, and its geometry.
+
+        RGB results as uint8 with an "S" axis; the maximum-intensity projection
+        in the input dtype; a grey occlusion rendering as float32 in [0, 1].
+        """
+        rgb = self.rgb
+        if rgb is not None:
+            pixels = np.rint(np.clip(rgb, 0.0, 1.0) * 255.0).astype(np.uint8)
+            return pixels, self.geometry.with_samples()
+        if self.method == "max":
+            return np.asarray(self.result.peak), self.geometry
+        return np.asarray(self.result, dtype=np.float32), self.geometry
+
+
+def _check_some_finite(data: Any) -> None:
+    """Refuse a stack with no finite value: a strided look first, the whole only if needed."""
+    if np.dtype(data.dtype).kind != "f":
+        return
+    step = max(1, int(data.shape[-1]) // 64)
+    sample = data[..., ::step]
+    if is_dask(sample):
+        sample = sample[(slice(None, None, max(1, int(data.shape[0]) // 8)),)].compute()
+    if np.isfinite(np.asarray(sample)).any():
+        return
+    finite = np.isfinite(data).any()
+    if bool(finite.compute() if is_dask(finite) else finite):
+        return
+    fail("stack", "some finite values", "<only NaN or infinite values>",
+         hint="is the file empty or the wrong channel?")
+
+
+def _depth_axis(selection: Selection, depth_axis: int | None) -> int:
+    stack = selection.stack
+    if depth_axis is None:
+        depth_axis = stack.axis("Z")
+        if depth_axis is None:
+            fail("INPUT", "a z-stack (a Z axis)", f"<axes {stack.axes} and shape {tuple(stack.data.shape)}>")
+    if not 0 <= depth_axis < stack.data.ndim:
+        fail("depth axis", f"an axis from 0 to {stack.data.ndim - 1}", depth_axis)
+    if int(stack.data.shape[depth_axis]) < 2:
+        fail("INPUT", "a z-stack with 2 or more slices along the depth axis",
+             f"<{int(stack.data.shape[depth_axis])} slice>")
+    return depth_axis
+
+
+def project_stack(selection: Selection, options: ProjectionOptions, *,
+                  depth_axis: int | None = None, progress: Progress = None) -> Projected:
+    """Project a stack along its depth axis: the one projection job of stackdepth.
+
+    Parameters
+    ----------
+    selection : Selection
+        The stack to project (see :func:`~viewer_plugin.jobs.stack.select`).
+    options : ProjectionOptions
+        Method and display options.
+    depth_axis : int, optional
+        Index of the depth axis in ``selection.stack``; default its "Z" axis.
+    progress : callable, optional
+        ``progress(done, total)``; may raise Cancelled.
+
+    Returns
+    -------
+    Projected
+        The kernel result, the output geometry and the provenance.
+
+    Raises
+    ------
+    ParameterError
+        For an unknown method, options that do not fit the method, a stack
+        without a depth axis or without any finite value, or a bad step.
+    """
+    from ..kernels import projection as kp
+
+    method = check_choice(options.method, name="method", choices=PROJECTION_METHODS)
+    stack = selection.stack
+    axis = _depth_axis(selection, depth_axis)
+    z_step, z_from, notes = axis_step(stack, axis, options.z_step)
+    _check_some_finite(stack.data)
+    data = stack.data
+    entries: dict[str, Any] = {
+        "method": method, "z_step_um": z_step, "z_step_from": z_from, "depth_axis": axis,
+        "axes": stack.axes, "voxel_size_um": describe_voxel(stack, axis, z_step)}
+    sides: tuple[SideView, ...] = ()
+    if method == "max":
+        result = kp.peak_projection(data, axis=axis, z_step=z_step, progress=progress)
+    elif method in DEPTH_CODED:
+        cmap = options.cmap or DEFAULT_CMAP
+        result = kp.depth_coded_projection(
+            data, z_step=z_step, method=method, cmap=cmap, depth_range=options.depth_range,
+            clim=options.clim, gamma=options.gamma, axis=axis, progress=progress)
+        entries.update({"cmap": cmap, "depth_range_um": [float(v) for v in result.depth_range],
+                        "depth_range_requested_um": options.depth_range, "clim": options.clim,
+                        "clim_used": [float(v) for v in result.clim], "gamma": options.gamma})
+    else:
+        result, sides, used = _occlusion(data, axis, z_step, options, stack, progress)
+        entries.update(used)
+    if method != "max":
+        entries["caveat"] = "brightness is display contrast, not a calibrated intensity"
+    geometry = drop_axis(geometry_of(stack), axis)
+    return Projected(method, result, geometry, provenance("projection", selection, **entries),
+                     sides, notes)
+
+
+def _occlusion(data: Any, axis: int, z_step: float, options: ProjectionOptions, stack: Any,
+               progress: Progress) -> tuple[Any, tuple[SideView, ...], dict[str, Any]]:
+    """The occlusion rendering, and its side views with the same density and contrast."""
+    from ..kernels import projection as kp
+
+    n = int(data.shape[axis])
+    density = options.density if options.density is not None else kp.default_density(n, z_step)
+    clim = options.clim
+    parts = 3 if options.side_views else 1
+    if clim is None and options.side_views:  # one contrast for all three views
+        clim = kp.display_limits(data, axis=axis)
+    top = kp.occlusion_projection(data, z_step=z_step, density=density, clim=clim,
+                                  view=options.view, cmap=options.cmap, axis=axis,
+                                  progress=sub_progress(progress, 0, parts))
+    sides: list[SideView] = []
+    if options.side_views:
+        sides = _side_views(data, axis, z_step, density, clim, options.cmap, stack, progress)
+    used = {"density_per_um": density, "view": options.view, "clim": options.clim,
+            "clim_used": None if clim is None else [float(v) for v in clim], "cmap": options.cmap,
+            "side_views": bool(options.side_views), "note": "a rendering, not a measurement"}
+    return top, tuple(sides), used
+
+
+def _side_views(data: Any, axis: int, z_step: float, density: float, clim: Any, cmap: Any,
+                stack: Any, progress: Progress) -> list[SideView]:
+    """Views along the two lateral axes; rows are depth, each row coloured by its depth."""
+    from ..kernels import projection as kp
+
+    lateral = [i for i in range(data.ndim) if i != axis][-2:]
+    colours = None
+    if cmap is not None:  # a side-view ray runs at one depth: its colour is that depth's colour
+        colours = kp.depth_colours(int(data.shape[axis]), z_step=z_step, cmap=cmap)
+        colours = colours.astype(np.float32)[:, None, :]
+    base = geometry_of(stack)
+    views = []
+    for k, side_axis in enumerate(lateral, start=1):
+        step = float(stack.scale[side_axis])
+        view = kp.occlusion_projection(data, z_step=step, density=density, clim=clim, view="top",
+                                       axis=side_axis, progress=sub_progress(progress, k, 3))
+        depth_pos = axis if axis < side_axis else axis - 1
+        view = np.moveaxis(np.asarray(view), depth_pos, -2)
+        if colours is not None:
+            view = view[..., None] * colours
+        across = lateral[1] if side_axis == lateral[0] else lateral[0]
+        lead = [i for i in range(data.ndim) if i not in (axis, *lateral)]
+        order = lead + [axis, across]
+        geometry = Geometry("".join(base.axes[i] for i in order),
+                            tuple(z_step if i == axis else base.scale[i] for i in order),
+                            tuple(base.translate[i] for i in order))
+        along = stack.axes[side_axis].lower()
+        views.append(SideView(along, view, geometry))
+    return views
