@@ -55,16 +55,16 @@ def build_parser() -> argparse.ArgumentParser:
 def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the ``stackdepth`` console script; returns the exit status."""
     parser = build_parser()
+    held = _HeldWarnings()
     try:
         args = parser.parse_args(argv)
-        logging.basicConfig(
-            level=logging.INFO if args.verbose else logging.WARNING,
-            format="stackdepth: %(levelname)s: %(message)s",
-        )
+        held.install(verbose=args.verbose)
         if not getattr(args, "func", None):
             parser.print_help(sys.stderr)
             return EXIT_USAGE
-        return int(args.func(args) or 0)
+        status = int(args.func(args) or 0)
+        held.show()  # a command that finished shows what the readers warned about
+        return status
     except CommandError as exc:
         return _error(str(exc), EXIT_USAGE)
     except (ValueError, OSError) as exc:
@@ -76,6 +76,37 @@ def main(argv: Sequence[str] | None = None) -> int:
             logging.exception("internal error")
         return _error(f"internal error ({type(exc).__name__}: {exc}); rerun with -v for details",
                       EXIT_FAILURE)
+    finally:
+        logging.getLogger().removeHandler(held)
+
+
+class _HeldWarnings(logging.Handler):
+    """Keep log warnings until the command has finished, so an error stays one line.
+
+    Readers log odd metadata (e.g. an unusable voxel size) as warnings; they are
+    printed as notes after a successful run and dropped when the run ends with
+    an error line (which names what went wrong).
+    """
+
+    def __init__(self) -> None:
+        super().__init__(logging.WARNING)
+        self.records: list[logging.LogRecord] = []
+
+    def emit(self, record: logging.LogRecord) -> None:
+        self.records.append(record)
+
+    def install(self, *, verbose: bool) -> None:
+        root = logging.getLogger()
+        root.setLevel(logging.INFO if verbose else logging.WARNING)
+        if verbose:  # details go out as they come
+            logging.basicConfig(format="stackdepth: %(levelname)s: %(message)s")
+            return
+        root.addHandler(self)
+
+    def show(self) -> None:
+        for record in self.records:
+            print(f"stackdepth: note: {record.getMessage()}", file=sys.stderr)
+        self.records.clear()
 
 
 def _option_words(message: str, parser: argparse.ArgumentParser) -> str:

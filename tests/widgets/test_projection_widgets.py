@@ -412,3 +412,23 @@ def test_weighted_with_layer_contrast_warns_in_the_dock(make_napari_viewer):
     assert "background" in widget.method_hint.value
     widget.auto_contrast.value = True
     assert widget.method_hint.value == "" and "background + 3 SD" in widget.clim_label.value
+
+
+@pytest.mark.parametrize("pixel", [(0.4, 0.5), (2.0, 2.0)])
+def test_dock_figure_is_drawn_to_scale(make_napari_viewer, qtbot, tmp_path, pixel):
+    """The dock's export with anisotropic pixels: sidecar pixel size, aspect and scale bar
+    (tests/figure_checks.py; the scale bar's definition: µm length / pixel width)."""
+    from tests.cli.test_figure_geometry import mostly_black_stack
+    from tests.figure_checks import check_figure_geometry
+    from viewer_plugin.widgets.projection import DepthColourWidget
+
+    viewer = make_napari_viewer(show=True)
+    data = mostly_black_stack()
+    viewer.add_image(data, name="aniso", scale=(1.5, *pixel), axis_labels=("z", "y", "x"))
+    widget = DepthColourWidget(viewer)
+    widget.live.value = False
+    widget.auto_contrast.value = True
+    _run(qtbot, widget)
+    files = widget.export_figure(tmp_path / "fig.png")
+    assert files is not None
+    check_figure_geometry(files.figure, shape_yx=data.shape[1:], pixel_um=pixel)

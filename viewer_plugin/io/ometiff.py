@@ -137,6 +137,9 @@ def _read(path: Path, lazy: bool | None, complaints: list[str]) -> StackData:
                            path, len(channels), n_channels)
         channels = [f"channel {i}" for i in range(n_channels)]
     metadata = dict(info.get("annotations", {}))
+    if info.get("unusable"):
+        # kept so that a job refuses a depth step of 1 that only stands in for a bad value
+        metadata["unusable_voxel_size"] = dict(info["unusable"])
     return Stack(data, axes, scale, channels if n_channels else [], metadata, path)
 
 
@@ -219,6 +222,8 @@ def _ome_info(xml: str, path: Path) -> dict[str, Any]:
         step = _physical(pixels, f"PhysicalSize{axis}", _LENGTH_UM, path)
         if step is not None:
             info["steps"][axis] = step
+        elif pixels.get(f"PhysicalSize{axis}") is not None:
+            info.setdefault("unusable", {})[axis] = pixels.get(f"PhysicalSize{axis}")
         elif axis in "XY":
             logger.warning("%s: no PhysicalSize%s; using 1 (pixels, not um)", path, axis)
     step = _physical(pixels, "TimeIncrement", _TIME_S, path)

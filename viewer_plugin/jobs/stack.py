@@ -239,16 +239,31 @@ def axis_step(stack: Stack, axis: int, override: float | None = None, *,
     if override is not None:
         return check_number(override, name=name, low=0.0, low_open=True), "given", ()
     step = float(stack.scale[axis])
+    bad = _unusable(stack).get(stack.axes[axis])
+    if bad is not None:
+        fail(name, f"a positive voxel size along {stack.axes[axis]} from the file",
+             f"<PhysicalSize{stack.axes[axis]}={bad!r} in {stack.source}>",
+             hint="give the step yourself (--z-step on the command line, 'Override z-step' "
+                  "in the dock)")
     if not (math.isfinite(step) and step > 0):
         fail(name, "a positive step along the depth axis", step,
              hint="the file's voxel size is not usable; give the step yourself")
-    warnings: tuple[str, ...] = ()
+    warnings: tuple[str, ...] = tuple(
+        f"{stack.source}: PhysicalSize{letter}={value!r} is not a usable voxel size; 1 \u00b5m "
+        "is used instead, so lengths along that axis (and scale bars) are in pixels"
+        for letter, value in _unusable(stack).items() if letter in stack.axes)
     spatial = [float(stack.scale[i]) for i, a in enumerate(stack.axes) if a in "ZYX"]
-    if spatial and all(s == 1.0 for s in spatial):
+    if spatial and all(s == 1.0 for s in spatial) and not warnings:
         warnings = (f"{stack.source}: voxel size 1 \u00d7 1 \u00d7 1 \u00b5m, probably not in the file; "
                     "depths are in \u00b5m only if the step is: set it with --z-step (command "
                     "line) or 'Override z-step' (dock)",)
     return step, "file", warnings
+
+
+def _unusable(stack: Stack) -> dict[str, Any]:
+    """Voxel sizes the reader found in the file but could not use (axis letter -> value)."""
+    bad = stack.metadata.get("unusable_voxel_size") if isinstance(stack.metadata, dict) else None
+    return dict(bad) if isinstance(bad, dict) else {}
 
 
 def describe_voxel(stack: Stack, depth_axis: int, step: float) -> list[float]:
