@@ -50,6 +50,10 @@ class TwoPassResult:
         (z in µm, slope per µm; ``length_um = -1 / depth_slope`` when the slope is negative).
     fraction_lost : float
         Signal the forward pass lost to bleaching by its last slice.
+    offset : float
+        Background level of the forward pass (up to 16 sampled slices).
+    n_slices : int
+    z_step : float
     forward_profile, reverse_profile : ndarray of float64
         Mean foreground signal per slice (slice order, background subtracted).
     log_ratio : ndarray of float64
@@ -58,9 +62,6 @@ class TwoPassResult:
         ``2N - 1 - 2i``: extra exposures the reverse pass had at slice *i*.
     unbleached_profile : ndarray of float64
         Forward profile divided by ``(1 - k)**i``.
-    offset : float
-    n_slices : int
-    z_step : float
     caveat, summary : str
     """
 
@@ -73,14 +74,14 @@ class TwoPassResult:
     depth_intercept: float
     depth_slope: float
     fraction_lost: float
+    offset: float
+    n_slices: int
+    z_step: float
     forward_profile: np.ndarray = field(repr=False)
     reverse_profile: np.ndarray = field(repr=False)
     log_ratio: np.ndarray = field(repr=False)
     exposures: np.ndarray = field(repr=False)
     unbleached_profile: np.ndarray = field(repr=False)
-    offset: float
-    n_slices: int
-    z_step: float
     caveat: str
     summary: str
 

@@ -53,6 +53,14 @@ BACKGROUND_FRAMES = 16
 
 
 @dataclass(frozen=True)
+class SliceBackground:
+    """Background level and spread of every slice (float64 arrays, one value per slice)."""
+
+    level: np.ndarray
+    sigma: np.ndarray
+
+
+@dataclass(frozen=True)
 class Background:
     """Level and spread of the background voxels.
 
@@ -69,14 +77,6 @@ class Background:
     level: float
     sigma: float
     fraction: float
-
-
-@dataclass(frozen=True)
-class SliceBackground:
-    """Background level and spread of every slice (float64 arrays, one value per slice)."""
-
-    level: np.ndarray
-    sigma: np.ndarray
 
 
 def clipped_stats(values: np.ndarray, *, n_sigma: float = 3.0) -> Background:

@@ -61,14 +61,8 @@ def plane_nbytes(shape: tuple[int, ...], dtype: np.dtype) -> int:
     return int(np.prod(shape[1:], dtype=np.int64)) * np.dtype(dtype).itemsize
 
 
-def map_depth_blocks(
-    stack: Any,
-    block_fn: BlockFunction,
-    *,
-    axis: int,
-    whole_planes: bool = False,
-    progress: Progress = None,
-) -> Any:
+def map_depth_blocks(stack: Any, block_fn: BlockFunction, *, axis: int,
+                     whole_planes: bool = False, progress: Progress = None) -> Any:
     """A new float32 stack made block by block along the depth axis by *block_fn*.
 
     Parameters
