@@ -71,3 +71,31 @@ def test_npe2_validate_command():
     result = subprocess.run([sys.executable, "-m", "npe2", "validate", "stackdepth", "--imports"],
                             capture_output=True, text=True, timeout=300)
     assert result.returncode == 0, result.stdout + result.stderr
+
+
+def _relative_imports(path: Path) -> list[tuple[int, str]]:
+    """(level, module) of every relative import statement in *path*."""
+    tree = ast.parse(path.read_text(encoding="utf-8"))
+    found = []
+    for node in ast.walk(tree):
+        if isinstance(node, ast.ImportFrom) and node.level > 0:
+            found.append((node.level, node.module or ""))
+    return found
+
+
+FEATURES = ("projection", "attenuation", "bleaching")
+
+
+@pytest.mark.parametrize("folder", ["primitives", *FEATURES])
+def test_kernel_subpackages_import_only_primitives(folder):
+    """kernels/primitives imports no feature subpackage, and no feature imports another one:
+    what two features share lives in primitives."""
+    others = {"primitives": FEATURES}.get(folder, tuple(f for f in FEATURES if f != folder))
+    offenders = []
+    for path in (PACKAGE / "kernels" / folder).rglob("*.py"):
+        for level, module in _relative_imports(path):
+            if level == 2 and module.split(".")[0] in others:
+                offenders.append(f"{path.name}: ..{module}")
+            if level == 2 and module == "":
+                offenders.append(f"{path.name}: from .. import")
+    assert offenders == []

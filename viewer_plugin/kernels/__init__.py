@@ -4,7 +4,10 @@
   depth legend;
 * :mod:`.attenuation` -- depth attenuation estimate and correction;
 * :mod:`.bleaching` -- bleaching check, correction and two-pass separation;
-* :mod:`.primitives` -- the statistics and chunking they share.
+* :mod:`.primitives` -- what the features share, written once: background
+  levels, line fits and intervals, per-slice gains, histogram specification,
+  Otsu thresholds, the per-slice foreground profile and z-chunking. The
+  features import primitives, never each other.
 
 Pure numpy (with numba loops and dask arrays); this package never imports
 napari, Qt or magicgui, so everything here runs headless, in scripts and

@@ -98,14 +98,11 @@ def bleaching_figure(
 
 
 def _attenuation_line(result: TwoPassResult) -> tuple[np.ndarray, np.ndarray] | None:
-    z = result.depths
-    u = result.unbleached_profile
-    valid = np.isfinite(result.log_ratio) & (u > 0)
-    if not valid.any():
+    """The bleaching-free depth fit of the result, ``exp(intercept + slope * z)``."""
+    if not (math.isfinite(result.depth_intercept) and math.isfinite(result.depth_slope)):
         return None
-    slope = -1.0 / result.length_um if math.isfinite(result.length_um) else 0.0
-    intercept = float(np.mean(np.log(u[valid]) - slope * z[valid]))
-    return z, np.exp(intercept + slope * z)
+    z = result.depths
+    return z, np.exp(result.depth_intercept + result.depth_slope * z)
 
 
 def two_pass_figure(

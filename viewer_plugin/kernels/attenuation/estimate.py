@@ -17,6 +17,7 @@ from __future__ import annotations
 import math
 import warnings
 from dataclasses import dataclass, field
+from functools import partial
 from typing import Any, Callable
 
 import numpy as np
@@ -31,18 +32,17 @@ from ..._shared.validation import (
     depth_first,
     fail,
 )
-from ..primitives.chunks import depth_chunks, plane_nbytes
+from ..primitives.fitting import POOR_FIT, LineFit, decay_length, fit_log_profile
+from ..primitives.foreground import (
+    MAX_ITERATIONS,
+    Foreground,
+    iterate_foreground,
+    measure_depth_profile,
+    moved_mask,
+    profile_steps,
+)
 from . import models
 from .correct import apply_correction
-from .measure import (
-    Foreground,
-    auto_step,
-    brightest_slice,
-    lateral_sample,
-    measure_background,
-    measure_foreground,
-    moved_mask,
-)
 
 __all__ = [
     "AttenuationFit",
@@ -62,15 +62,6 @@ CAUTION = (
     "deep slices. One stack cannot separate attenuation from bleaching: in one-photon imaging "
     "the length measured here combines both."
 )
-
-#: Iteration limit and tolerance (largest change of ln gain) of the foreground loop.
-MAX_ITERATIONS = 40
-TOLERANCE = 1e-4
-DAMP_AFTER = 8
-#: A loop still hopping between two foreground selections after 2 * DAMP_AFTER
-#: passes is accepted when the gains move by less than this (1 %).
-LOOSE_TOLERANCE = 1e-2
-
 
 class AttenuationWarning(UserWarning):
     """A result of the attenuation kernels that deserves a second look."""
@@ -175,46 +166,7 @@ def _check_inputs(stack: Any, z_step: Any, model: Any, axis: Any, mask: Any) -> 
     return stack, z_step, model, axis, mask
 
 
-def _model_gain(model: str, depth: np.ndarray, fg: Foreground, bandwidth: float) -> tuple:
-    """Gain and model profile of one pass (the quantile model iterates on the exponential)."""
-    if model == "smooth":
-        log_model = models.smooth_log_profile(depth, fg.signal, fg.sem, bandwidth=bandwidth)
-        gain = np.exp(log_model[0] - log_model)
-        return np.where(np.isfinite(gain), gain, 1.0), np.exp(log_model)
-    fit = models.fit_exponential(depth, fg.signal, fg.sem)
-    if not math.isfinite(fit.rate):
-        return np.ones_like(depth), np.full(depth.shape, np.nan)
-    curve = np.exp(fit.intercept - fit.rate * depth)
-    gain = np.exp(fit.rate * (depth - depth[0])) if fit.rate > 0 else np.ones_like(depth)
-    return gain, curve
-
-
-def _iterate(above: np.ndarray, noise: np.ndarray, depth: np.ndarray, model: str,
-             bandwidth: float, progress: Callable | None, done: int, total: int) -> tuple:
-    """Select foreground on the corrected sample, re-fit, until the gains settle."""
-    gain = np.ones_like(depth)
-    curve = np.full(depth.shape, np.nan)
-    reference = brightest_slice(above)
-    fg = measure_foreground(above, gain, noise, reference)
-    converged = False
-    iteration = 0
-    for iteration in range(1, MAX_ITERATIONS + 1):
-        if int(np.isfinite(fg.signal).sum()) < 3:
-            break
-        new_gain, curve = _model_gain(model, depth, fg, bandwidth)
-        if iteration > DAMP_AFTER:  # damp a loop that hops between two selections
-            new_gain = np.sqrt(new_gain * gain)
-        change = float(np.max(np.abs(np.log(new_gain) - np.log(gain))))
-        gain = new_gain
-        report_progress(progress, done + iteration, total)
-        if change < TOLERANCE or (iteration > 2 * DAMP_AFTER and change < LOOSE_TOLERANCE):
-            converged = True
-            break
-        fg = measure_foreground(above, gain, noise, reference)
-    return fg, gain, curve, iteration, converged
-
-
-def _findings(fit: models.ExponentialFit, fg: Foreground, length: float,
+def _findings(fit: LineFit, fg: Foreground, length: float,
               interval: tuple[float, float], converged: bool, model: str) -> list[str]:
     notes = []
     if not converged:
@@ -226,7 +178,7 @@ def _findings(fit: models.ExponentialFit, fg: Foreground, length: float,
     if math.isinf(length):
         notes.append("the signal does not decrease with depth: the exponential model applies "
                      "no correction")
-    if math.isfinite(fit.r_squared) and fit.r_squared < 0.9:
+    if math.isfinite(fit.r_squared) and fit.r_squared < POOR_FIT:
         advice = ("the smooth model's gains follow the measured profile instead" if model == "smooth"
                   else "try the smooth model")
         notes.append(f"the exponential model explains only {fit.r_squared:.0%} of the depth variation: "
@@ -270,7 +222,7 @@ def estimate_attenuation(
     Each slice's signal is the mean intensity of its foreground voxels above
     that slice's background, so it does not depend on how much structure a
     slice holds. The background is a sigma-clipped mean of the dim voxels
-    (unbiased by shot noise, see :mod:`viewer_plugin.kernels.profiles`). The
+    (unbiased by shot noise, see :mod:`viewer_plugin.kernels.primitives.background`). The
     foreground is chosen with one Otsu threshold on the *corrected* stack;
     because that depends on the correction, selection and fit alternate
     until the gains change by less than 0.01 % (or by less than 1 % after
@@ -359,28 +311,28 @@ def estimate_attenuation(
     if smoothing_um is not None:
         smoothing_um = check_number(smoothing_um, name="smoothing_um", low=0, low_open=True)
     moved = depth_first(stack, axis)
-    step = auto_step(moved.shape[1:]) if lateral_step is None else check_int(
-        lateral_step, name="lateral_step", low=1)
-    n_chunks = len(list(depth_chunks(moved.shape[0], plane_nbytes(moved.shape, moved.dtype))))
-    total = n_chunks + (2 if model == "smooth" else 1) * MAX_ITERATIONS + 1
-    sample, done = lateral_sample(moved, moved_mask(mask, stack.shape, axis), step, progress, total)
-    _check_sample(stack, sample, mask)
-    depth = np.arange(moved.shape[0], dtype=np.float64) * z_step
-    background = measure_background(sample)
-    above = sample - background.level[:, None].astype(np.float32)
-    loop = _iterate(above, background.sigma, depth, "exponential", 0.0, progress, done, total)
-    _check_structure(loop[0], background.sigma)
-    fg, gain, curve, n_iter, converged = loop
-    exp_fit = models.fit_exponential(depth, fg.signal, fg.sem)
-    length = models.length_from_rate(exp_fit.rate)
+    step = None if lateral_step is None else check_int(lateral_step, name="lateral_step", low=1)
+    total = profile_steps(moved) + (MAX_ITERATIONS if model == "smooth" else 0) + 1
+    measured = measure_depth_profile(moved, z_step=z_step, mask=moved_mask(mask, stack.shape, axis),
+                                     step=step, progress=progress, total=total)
+    if measured.nan_fraction > 0:
+        warnings.warn(f"estimate_attenuation: {measured.nan_fraction:.2%} of the sampled voxels are "
+                      "NaN or infinite and were ignored", AttenuationWarning, stacklevel=2)
+    depth, loop = measured.depth, measured.loop
+    fg, gain, n_iter, converged = loop.foreground, loop.gain, loop.n_iterations, loop.converged
+    exp_fit = fit_log_profile(depth, fg.signal, fg.sem)
+    length = decay_length(exp_fit.slope)
     interval = models.length_interval(exp_fit)
-    curve = np.exp(exp_fit.intercept - exp_fit.rate * depth)
+    curve = np.exp(exp_fit.intercept + exp_fit.slope * depth)
     if model == "smooth":
         bandwidth = smoothing_um if smoothing_um is not None else max(depth[-1] / 10.0, z_step)
-        fg, gain, curve, n_smooth, smooth_converged = _iterate(
-            above, background.sigma, depth, "smooth", bandwidth, progress, done + MAX_ITERATIONS, total)
-        n_iter += n_smooth
-        converged = converged and smooth_converged
+        smooth = iterate_foreground(measured.above, measured.background.sigma, depth,
+                                    partial(models.smooth_gain, bandwidth=bandwidth),
+                                    progress=progress, done=measured.done, total=total)
+        fg, gain, curve = smooth.foreground, smooth.gain, smooth.curve
+        n_iter += smooth.n_iterations
+        converged = converged and smooth.converged
+    sample, background = measured.sample, measured.background
     if offset is None:
         offset = models.estimate_offset(background.level, curve, float(np.nanmin(sample)))
     maps = None
@@ -397,38 +349,9 @@ def estimate_attenuation(
         offset=float(offset), profile=fg.signal, profile_sem=fg.sem, model_profile=curve,
         gain=np.asarray(gain, dtype=np.float64), depth_um=depth, background=background.level,
         foreground_fraction=fg.fraction, threshold=fg.threshold, z_step=z_step, axis=axis,
-        lateral_step=step, n_iterations=n_iter, converged=converged, quantile_maps=maps,
+        lateral_step=measured.step, n_iterations=n_iter, converged=converged, quantile_maps=maps,
         warnings=tuple(notes),
     )
-
-
-def _check_sample(stack: Any, sample: np.ndarray, mask: Any) -> None:
-    """Reject an all-NaN (or fully masked) stack; warn about ignored NaN voxels."""
-    finite = np.isfinite(sample)
-    if not finite.any():
-        if mask is not None:
-            fail("mask", "a mask that keeps some finite voxels", "<a mask that excludes all of them>")
-        fail("stack", "finite values", "<only NaN or infinite voxels>")
-    if mask is None and not finite.all():
-        fraction = 1.0 - finite.mean()
-        warnings.warn(f"estimate_attenuation: {fraction:.2%} of the sampled voxels are NaN or "
-                      "infinite and were ignored", AttenuationWarning, stacklevel=3)
-
-
-def _check_structure(fg: Foreground, sigma: np.ndarray) -> None:
-    """Reject a stack whose 'foreground' is no brighter than background noise."""
-    measured = np.isfinite(fg.signal)
-    if measured.sum() < 3:
-        fail("stack", "structure brighter than the background in at least 3 slices",
-             f"<{int(measured.sum())} slice(s) with measurable foreground>",
-             hint="is the stack empty or constant, or the mask too small?")
-    with np.errstate(divide="ignore", invalid="ignore"):
-        contrast = np.where(measured, fg.signal / np.where(sigma > 0, sigma, np.nan), np.nan)
-        contrast = np.where(measured & (sigma == 0) & (fg.signal > 0), np.inf, contrast)
-    best = float(np.nanmax(contrast)) if (~np.isnan(contrast)).any() else 0.0
-    if best < 3.0:
-        fail("stack", "structure at least 3 background standard deviations above the background",
-             f"<at most {best:.2g} standard deviations: background only>")
 
 
 def correct_attenuation(

@@ -2,11 +2,11 @@
 
 from __future__ import annotations
 
-import math
+from typing import Any
 
 import numpy as np
 
-__all__ = ["frozen", "frozen_bool", "r_squared"]
+__all__ = ["frozen", "frozen_bool", "plain_fields"]
 
 
 def frozen(values: np.ndarray) -> np.ndarray:
@@ -16,13 +16,18 @@ def frozen(values: np.ndarray) -> np.ndarray:
     return out
 
 
+def plain_fields(result: Any) -> dict[str, Any]:
+    """Every dataclass field of *result*, arrays as lists (for JSON reports)."""
+    out = {}
+    for name in result.__dataclass_fields__:
+        value = getattr(result, name)
+        out[name] = value.tolist() if isinstance(value, np.ndarray) else value
+    return out
+
+
 def frozen_bool(values: np.ndarray) -> np.ndarray:
     """A read-only boolean copy of *values*."""
     out = np.array(values, dtype=bool)
     out.setflags(write=False)
     return out
 
-
-def r_squared(y: np.ndarray, rss: float) -> float:
-    tss = float(np.sum((y - y.mean()) ** 2))
-    return 1.0 - rss / tss if tss > 0 else math.nan

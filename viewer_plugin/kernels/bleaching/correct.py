@@ -14,32 +14,26 @@ the relation between intensities.
 
 from __future__ import annotations
 
-from functools import partial
 from typing import Any
 
 import numpy as np
 
-from ..._shared.progress import Progress, report_progress
+from ..._shared.progress import Progress
 from ..._shared.validation import check_choice, check_int, check_stack, fail, is_dask
-from ..primitives.chunks import depth_chunks, plane_nbytes
+from ..primitives.chunks import map_depth_blocks
+from ..primitives.gain import apply_gains
+from ..primitives.matching import empirical_cdf, match_to_cdf
 from .estimate import BleachingReport, estimate_bleaching
 
 __all__ = ["RESCALE", "correct_bleaching", "equalise_to_reference"]
-
 
 
 #: How :func:`correct_bleaching` rescales each frame.
 RESCALE = ("model", "measured")
 
 
-def correct_bleaching(
-    series: Any,
-    report: BleachingReport,
-    *,
-    rescale: str = "model",
-    axis: int = 0,
-    progress: Progress = None,
-) -> Any:
+def correct_bleaching(series: Any, report: BleachingReport, *, rescale: str = "model",
+                      axis: int = 0, progress: Progress = None) -> Any:
     """Divide the fading measured by :func:`estimate_bleaching` out of a series.
 
     Parameters
@@ -58,12 +52,13 @@ def correct_bleaching(
     axis : int
         The acquisition axis (as given to :func:`estimate_bleaching`).
     progress : callable, optional
-        ``progress(done, total)`` between frames (numpy input only).
+        ``progress(done, total)`` between chunks of frames (numpy input only).
 
     Returns
     -------
     ndarray or dask array of float32
-        Same shape as *series*; lazy when *series* is a dask array. Corrected
+        Same shape as *series*; lazy when *series* is a dask array (one task
+        per block). Corrected
         intensities are relative, not calibrated, and the correction amplifies
         the noise of late, faded frames.
 
@@ -129,12 +124,13 @@ def equalise_to_reference(
     axis : int
         The acquisition axis.
     progress : callable, optional
-        ``progress(done, total)`` between frames (numpy input only).
+        ``progress(done, total)`` between chunks of frames (numpy input only).
 
     Returns
     -------
     ndarray or dask array of float32
-        Same shape as *series*; lazy when *series* is a dask array.
+        Same shape as *series*; lazy when *series* is a dask array (whole
+        frames per block, one task per block).
 
     Raises
     ------
@@ -160,83 +156,16 @@ def equalise_to_reference(
     reference = check_int(reference, name="reference")
     if not 0 <= reference < n:
         fail("reference", f"a frame index from 0 to {n - 1}", reference)
-    return match_frames(series, axis=axis, reference=reference, progress=progress)
-
-def _gain_shape(ndim: int, axis: int, n: int) -> tuple[int, ...]:
-    shape = [1] * ndim
-    shape[axis] = n
-    return tuple(shape)
-
-
-def apply_gains(series: Any, gains: np.ndarray, offset: float, *, axis: int, progress: Any = None) -> Any:
-    """``(series - offset) * gains[t] + offset`` as float32; lazy for dask input."""
-    gains32 = gains.astype(np.float32).reshape(_gain_shape(series.ndim, axis, gains.size))
-    off = np.float32(offset)
-    if is_dask(series):
-        return (series.astype(np.float32) - off) * gains32 + off
-    out = np.empty(series.shape, dtype=np.float32)
-    moved_in = np.moveaxis(np.asarray(series), axis, 0)
-    moved_out = np.moveaxis(out, axis, 0)
-    flat_gains = gains.astype(np.float32)
-    plane = plane_nbytes(tuple(moved_in.shape), moved_in.dtype)
-    n = moved_in.shape[0]
-    for part in depth_chunks(n, plane):
-        block = moved_out[part]                      # a view into the output: no temporaries
-        np.subtract(moved_in[part], off, out=block, dtype=np.float32, casting="unsafe")
-        block *= flat_gains[part].reshape((-1,) + (1,) * (block.ndim - 1))
-        block += off
-        report_progress(progress, part.stop, n)
-    return out
-
-
-def template_cdf(reference: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Distinct values of *reference* and their cumulative fractions."""
-    values, counts = np.unique(np.asarray(reference).ravel(), return_counts=True)
-    return values.astype(np.float64), np.cumsum(counts) / reference.size
-
-
-def _match_one(source: np.ndarray, values: np.ndarray, quantiles: np.ndarray) -> np.ndarray:
-    """Histogram specification of one frame onto a template CDF."""
-    flat = np.asarray(source).ravel()
-    if flat.dtype.kind == "u" and flat.dtype.itemsize <= 2:
-        counts = np.bincount(flat)
-        present = np.nonzero(counts)[0]
-        src_quantiles = np.cumsum(counts[present]) / flat.size
-        lookup_table = np.zeros(counts.size, dtype=np.float64)
-        lookup_table[present] = np.interp(src_quantiles, quantiles, values)
-        mapped = lookup_table[flat]
-    else:
-        _, inverse, counts = np.unique(flat, return_inverse=True, return_counts=True)
-        src_quantiles = np.cumsum(counts) / flat.size
-        mapped = np.interp(src_quantiles, quantiles, values)[inverse.ravel()]
-    return mapped.reshape(source.shape).astype(np.float32)
-
-
-def _match_block(block: np.ndarray, values: np.ndarray, quantiles: np.ndarray, axis: int) -> np.ndarray:
-    moved = np.moveaxis(block, axis, 0)
-    out = np.empty(moved.shape, dtype=np.float32)
-    for i in range(moved.shape[0]):
-        out[i] = _match_one(moved[i], values, quantiles)
-    return np.moveaxis(out, 0, axis)
-
-
-def match_frames(series: Any, *, axis: int, reference: int = 0, progress: Any = None) -> Any:
-    """Match every frame's histogram to frame *reference*'s (float32; lazy for dask)."""
-    moved = np.moveaxis(series, axis, 0) if not is_dask(series) else None
     if is_dask(series):
         import dask.array as da
 
-        first = np.asarray(da.take(series, [reference], axis=axis).compute())
-        values, quantiles = template_cdf(first)
-        whole = {i: -1 for i in range(series.ndim) if i != axis}
-        lazy = series.rechunk(whole)
-        return lazy.map_blocks(partial(_match_block, values=values, quantiles=quantiles, axis=axis),
-                               dtype=np.float32)
-    values, quantiles = template_cdf(moved[reference])
-    out = np.empty(series.shape, dtype=np.float32)
-    moved_out = np.moveaxis(out, axis, 0)
-    n = moved.shape[0]
-    for i in range(n):
-        moved_out[i] = _match_one(moved[i], values, quantiles)
-        report_progress(progress, i + 1, n)
-    return out
+        frame = np.asarray(da.take(series, [reference], axis=axis).compute())
+    else:
+        frame = np.take(np.asarray(series), [reference], axis=axis)
+    template = empirical_cdf(frame)
+
+    def block_fn(src: np.ndarray, dst: np.ndarray, start: int) -> None:
+        for i in range(src.shape[0]):
+            dst[i] = match_to_cdf(src[i], template)
+
+    return map_depth_blocks(series, block_fn, axis=axis, whole_planes=True, progress=progress)

@@ -18,9 +18,12 @@ import numpy as np
 
 from ..._shared.progress import Progress, report_progress
 from ..._shared.validation import check_choice, check_mask, check_number, check_stack, depth_first, fail
+from ..primitives.background import frames_background
+from ..primitives.fitting import r_squared
+from ..primitives.foreground import measure_depth_profile
 from . import models
-from ._common import frozen, frozen_bool, r_squared
-from .measure import masked_profile, reference_mask, sample_background
+from ._common import frozen, frozen_bool, plain_fields
+from .measure import masked_profile, reference_mask
 from .text import DEPTH_CAVEAT, bleaching_summary
 
 __all__ = ["BleachingReport", "estimate_bleaching", "MIN_CONTRAST"]
@@ -125,10 +128,7 @@ class BleachingReport:
 
     def to_dict(self) -> dict[str, Any]:
         """All fields as plain Python values (lists for arrays), for JSON reports."""
-        out = {name: getattr(self, name) for name in self.__dataclass_fields__}
-        out["profile"] = self.profile.tolist()
-        out["model_profile"] = self.model_profile.tolist()
-        out["used"] = self.used.tolist()
+        out = plain_fields(self)
         out["components"] = [list(c) for c in self.components]
         return out
 
@@ -191,10 +191,11 @@ def _fit_report(signal: np.ndarray, used: np.ndarray, *, interval: float, tolera
     components, plateau = _components(best)
     half = models.half_life_frames(best) * interval
     exceeds = bool(math.isfinite(lost) and lost > tolerance)
+    r2 = r_squared(signal[used], best.rss)
     return BleachingReport(
         rate_per_frame=rate, rate_interval=rate_ci, half_life=max(0.0, half), fraction_lost=lost,
         fraction_lost_interval=lost_ci, exceeds_tolerance=exceeds, tolerance=tolerance,
-        r_squared=r_squared(signal[used], best.rss), model=best.name, model_choice=why,
+        r_squared=r2, model=best.name, model_choice=why,
         components=components, plateau=plateau, profile=frozen(signal),
         model_profile=frozen(model), used=frozen_bool(used), offset=offset,
         background_sigma=sigma,
@@ -203,28 +204,22 @@ def _fit_report(signal: np.ndarray, used: np.ndarray, *, interval: float, tolera
         summary=bleaching_summary(fraction_lost=lost, half_life=half, n_frames=n,
                                   tolerance=tolerance, axis_kind=axis_kind,
                                   significant=significant or exceeds,
-                                  r_squared=r_squared(signal[used], best.rss)),
+                                  r_squared=r2),
     )
 
 
-def _depth_signal(stack: Any, *, axis: int, z_step: float) -> tuple[np.ndarray, np.ndarray]:
-    """Per-slice foreground signal of one z-stack, measured as the attenuation estimate does.
+def _depth_signal(moved: Any, *, z_step: float) -> tuple[np.ndarray, np.ndarray]:
+    """Per-slice foreground signal of one depth-first z-stack, and the slices measured.
 
     The slices of one stack hold different structures, so a per-slice
     threshold would select a different fraction of each slice's signal as it
-    dims. :func:`~viewer_plugin.kernels.attenuation.estimate_attenuation`
-    selects the foreground on the corrected stack and iterates, which keeps the
-    selection the same relative to the signal in every slice; the depth check
-    uses that same profile, so the two tools agree on one stack.
+    dims. :func:`..primitives.foreground.measure_depth_profile` selects the
+    foreground on the corrected stack and iterates, which keeps the selection
+    the same relative to the signal in every slice; the attenuation estimate
+    measures the same profile, so the two tools agree on one stack.
     """
-    import warnings
-
-    from ..attenuation import AttenuationWarning, estimate_attenuation
-
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", AttenuationWarning)
-        fit = estimate_attenuation(stack, z_step=z_step, axis=axis)
-    signal = np.asarray(fit.profile, dtype=np.float64)
+    loop = measure_depth_profile(moved, z_step=z_step, name="series").loop
+    signal = np.asarray(loop.foreground.signal, dtype=np.float64)
     used = np.isfinite(signal) & (signal > 0)
     return np.where(used, signal, np.nan), used
 
@@ -247,8 +242,8 @@ def estimate_bleaching(
     foreground of the (lightly smoothed) first frame, so a structure appearing
     later is not counted. The slices of a single 3-D stack show different
     structures, so for a depth axis (without *mask* or *offset*) the profile is
-    the foreground profile of :func:`~viewer_plugin.kernels.estimate_attenuation`
-    (foreground chosen on the corrected stack, iterated), and slices it could
+    the foreground profile that :func:`~viewer_plugin.kernels.estimate_attenuation`
+    also measures (foreground chosen on the corrected stack, iterated), and slices it could
     not measure are left out of the fit; with a mask or offset, or for other
     shapes, each slice uses its own Otsu foreground and slices less than 1.5
     background standard deviations above the background are left out. First-order bleaching
@@ -275,7 +270,7 @@ def estimate_bleaching(
     offset : float, optional
         Background level to subtract from every frame (e.g. a known detector
         offset). Default: each frame's own background level, the sigma-clipped
-        mean of its dim voxels (``profiles.background_level``), so that a haze
+        mean of its dim voxels (``background_level``), so that a haze
         fading with the signal does not bias the rate; corrections then use
         the level of up to 16 frames sampled along the series.
     axis_kind : {"time", "depth"}, optional
@@ -333,7 +328,7 @@ def estimate_bleaching(
     if n < 2:
         fail("series", f"at least 2 frames along axis {axis}", f"<{n} frame>")
     mask = check_mask(mask, tuple(moved.shape[1:]))
-    background = sample_background(moved)
+    background = frames_background(moved)
     level = background.level if offset is None else check_number(offset, name="offset")
     total = n + 1
     if mask is None and axis_kind == "time":
@@ -359,7 +354,7 @@ def estimate_bleaching(
              hint="the series looks like background only; pass a mask or check the layer")
     used = finite
     if axis_kind == "depth" and mask is None and moved.ndim == 3 and offset is None:
-        signal, used = _depth_signal(series, axis=axis, z_step=interval)
+        signal, used = _depth_signal(moved, z_step=interval)
     elif axis_kind == "depth" and mask is None:
         # slices without a clear foreground (above or below the tissue) hold only noise
         clear = finite & (signal > MIN_CONTRAST * np.where(np.isfinite(sigmas), sigmas, 0.0))

@@ -1,9 +1,11 @@
-"""Measurement helpers of the bleaching kernels: background, fixed foreground, profiles.
+"""Measurement helpers of the bleaching kernels: fixed foreground masks and per-frame profiles.
 
 The per-frame signal is the mean of the background-subtracted voxels inside one
 *fixed* foreground mask, so that a structure which changes between frames does
-not read as a change of brightness. Reductions run chunk by chunk along the
-acquisition axis (numpy and dask share the code).
+not read as a change of brightness. Masks come from Otsu's threshold
+(:func:`..primitives.threshold.otsu_mask`), backgrounds from the sigma-clipped
+background level (:mod:`..primitives.background`). Reductions run chunk by
+chunk along the acquisition axis (numpy and dask share the code).
 """
 
 from __future__ import annotations
@@ -14,78 +16,17 @@ import numpy as np
 
 from ..._shared.progress import report_progress
 from ..._shared.validation import fail, is_dask
-from ..primitives.background import Background, background_level
+from ..primitives.background import background_level
 from ..primitives.chunks import depth_chunks, plane_nbytes
+from ..primitives.threshold import otsu_mask
 
-__all__ = [
-    "sample_background",
-    "otsu_mask",
-    "reference_mask",
-    "masked_profile",
-    "frame_mean",
-]
-
-#: Frames sampled along the acquisition axis for the background estimate.
-_BACKGROUND_FRAMES = 16
-#: Voxels kept (at most) for the Otsu threshold of a reference image.
-_OTSU_SAMPLE = 2_000_000
+__all__ = ["masked_profile", "per_slice_masks", "reference_mask"]
 
 
 def _as_numpy(block: Any) -> np.ndarray:
     if is_dask(block):
         block = block.compute()
     return np.asarray(block)
-
-
-def sample_background(moved: Any) -> Background:
-    """Background of up to 16 evenly spaced frames of a depth-first array."""
-    n = int(moved.shape[0])
-    picks = np.unique(np.linspace(0, n - 1, min(n, _BACKGROUND_FRAMES)).round().astype(int))
-    # stride first (a view), then pick frames: only the small sample is copied or computed
-    sample = _as_numpy(moved[..., ::4, ::4][picks])
-    return background_level(sample, step=1)
-
-
-def _strided_sample(image: np.ndarray) -> np.ndarray:
-    """At most about ``_OTSU_SAMPLE`` finite voxels of *image*, evenly strided."""
-    flat = image.ravel()
-    step = max(1, flat.size // _OTSU_SAMPLE)
-    sample = flat[::step]
-    return sample[np.isfinite(sample)]
-
-
-def otsu_mask(image: np.ndarray, *, smooth: float = 1.0) -> np.ndarray:
-    """Voxels of *image* above the Otsu threshold of its smoothed copy.
-
-    The threshold and the mask come from a Gaussian-smoothed copy (sigma
-    *smooth* voxels on every axis), so that the noise of the reference does
-    not pick voxels that merely happened to be bright in it (a selection that
-    would make later frames look dimmer: regression to the mean). Otsu: N. Otsu
-    1979, via ``skimage.filters.threshold_otsu``. All-False for a constant image.
-    """
-    from scipy import ndimage
-    from skimage.filters import threshold_otsu
-
-    image = np.asarray(image, dtype=np.float32)
-    if smooth > 0:
-        image = ndimage.gaussian_filter(image, smooth, mode="nearest")
-    sample = _strided_sample(image)
-    if sample.size == 0 or float(sample.min()) == float(sample.max()):
-        return np.zeros(image.shape, dtype=bool)
-    threshold = float(threshold_otsu(sample))
-    return np.asarray(image > threshold)
-
-
-def frame_mean(moved: Any, *, progress: Any = None, done: int = 0, total: int = 1) -> np.ndarray:
-    """Mean over the acquisition axis (float64) of a depth-first array, chunk by chunk."""
-    n = int(moved.shape[0])
-    acc = np.zeros(moved.shape[1:], dtype=np.float64)
-    plane = plane_nbytes(tuple(moved.shape), moved.dtype)
-    for part in depth_chunks(n, plane):
-        acc += _as_numpy(moved[part]).sum(axis=0, dtype=np.float64)
-        done += part.stop - part.start
-        report_progress(progress, done, total)
-    return acc / n
 
 
 def reference_mask(moved: Any) -> np.ndarray:
@@ -111,7 +52,7 @@ def masked_profile(
     All float64, one value per frame of a depth-first array. With ``mask=None``
     every frame uses its own Otsu foreground (for the slices of one stack,
     which show different structures); a frame without one uses all voxels. The background of each frame is the
-    sigma-clipped mean of its dim voxels (``profiles.background_level``), so a
+    sigma-clipped mean of its dim voxels (``background_level``), so a
     haze that fades with the signal is subtracted frame by frame.
     """
     n = int(moved.shape[0])

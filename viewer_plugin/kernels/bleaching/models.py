@@ -23,6 +23,8 @@ from typing import Callable
 import numpy as np
 from scipy import optimize, stats
 
+from ..primitives.fitting import t_interval
+
 __all__ = ["ModelFit", "fit_models", "select_model", "effective_rate", "half_life_frames"]
 
 #: Significance level of the F-test that admits a richer model.
@@ -215,8 +217,8 @@ def rate_interval(fit: ModelFit, n: int, *, n_points: int | None = None,
     variance = float(grad @ fit.cov @ grad)
     if not math.isfinite(variance) or variance < 0:
         return (float("nan"), float("nan"))
-    half = float(stats.t.ppf(0.5 + level / 2, dof)) * math.sqrt(variance)
-    return (rate - half, min(rate + half, 1.0))
+    low, high = t_interval(rate, math.sqrt(variance), dof, level)
+    return (low, min(high, 1.0))
 
 
 def half_life_frames(fit: ModelFit) -> float:

@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import math
 
+from ..primitives.fitting import POOR_FIT
+
 __all__ = ["DEPTH_CAVEAT", "TWO_PASS_CAVEAT", "format_duration", "format_percent",
            "bleaching_summary", "two_pass_summary"]
 
@@ -19,10 +21,6 @@ TWO_PASS_CAVEAT = (
     "the same settings in both passes. With two-photon excitation bleaching stays in the focal "
     "plane and the ratio shows no trend. Intensities are relative, not calibrated."
 )
-
-
-#: R² below which the summary says that the decay model fits poorly.
-POOR_FIT = 0.8
 
 
 def format_percent(fraction: float) -> str:

@@ -13,12 +13,19 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
-from scipy import stats
 
 from ..._shared.progress import Progress
 from ..._shared.validation import check_number, check_stack, depth_first, fail
-from ._common import frozen, r_squared
-from .measure import per_slice_masks, sample_background
+from ..primitives.background import frames_background
+from ..primitives.fitting import (
+    decay_length,
+    decay_length_interval,
+    fit_line,
+    fit_through_origin,
+    t_interval,
+)
+from ._common import frozen, plain_fields
+from .measure import per_slice_masks
 from .text import TWO_PASS_CAVEAT, two_pass_summary
 
 __all__ = ["TwoPassResult", "separate_bleaching"]
@@ -36,9 +43,17 @@ class TwoPassResult:
         Attenuation length ℓ in µm (I ∝ exp(-z/ℓ)) and its 95 % interval;
         ``inf`` when no decay with depth is left.
     r_squared_rate, r_squared_length : float
-        Of the log-ratio fit and of the bleaching-free depth fit.
+        Of the log-ratio fit (through the origin, so uncentred: ``1 - rss / sum y**2``)
+        and of the bleaching-free depth fit (centred).
+    depth_intercept, depth_slope : float
+        The bleaching-free depth fit ``ln(unbleached) = depth_intercept + depth_slope * z``
+        (z in µm, slope per µm; ``length_um = -1 / depth_slope`` when the slope is negative).
     fraction_lost : float
         Signal the forward pass lost to bleaching by its last slice.
+    offset : float
+        Background level of the forward pass (up to 16 sampled slices).
+    n_slices : int
+    z_step : float
     forward_profile, reverse_profile : ndarray of float64
         Mean foreground signal per slice (slice order, background subtracted).
     log_ratio : ndarray of float64
@@ -47,9 +62,6 @@ class TwoPassResult:
         ``2N - 1 - 2i``: extra exposures the reverse pass had at slice *i*.
     unbleached_profile : ndarray of float64
         Forward profile divided by ``(1 - k)**i``.
-    offset : float
-    n_slices : int
-    z_step : float
     caveat, summary : str
     """
 
@@ -59,45 +71,28 @@ class TwoPassResult:
     length_interval: tuple[float, float]
     r_squared_rate: float
     r_squared_length: float
+    depth_intercept: float
+    depth_slope: float
     fraction_lost: float
+    offset: float
+    n_slices: int
+    z_step: float
     forward_profile: np.ndarray = field(repr=False)
     reverse_profile: np.ndarray = field(repr=False)
     log_ratio: np.ndarray = field(repr=False)
     exposures: np.ndarray = field(repr=False)
     unbleached_profile: np.ndarray = field(repr=False)
-    offset: float
-    n_slices: int
-    z_step: float
     caveat: str
     summary: str
+
+    def to_dict(self) -> dict[str, Any]:
+        """All fields as plain Python values, for JSON reports."""
+        return plain_fields(self)
 
     @property
     def depths(self) -> np.ndarray:
         """Depth of each slice in µm (slice index x z_step)."""
         return np.arange(self.n_slices, dtype=np.float64) * self.z_step
-
-    def to_dict(self) -> dict[str, Any]:
-        """All fields as plain Python values, for JSON reports."""
-        out = {name: getattr(self, name) for name in self.__dataclass_fields__}
-        for name in ("forward_profile", "reverse_profile", "log_ratio", "exposures",
-                     "unbleached_profile"):
-            out[name] = getattr(self, name).tolist()
-        return out
-
-
-def _through_origin(x: np.ndarray, y: np.ndarray) -> tuple[float, float, float]:
-    """Slope of y = b x, its standard error and the R² (centred)."""
-    sxx = float(np.sum(x * x))
-    slope = float(np.sum(x * y)) / sxx
-    rss = float(np.sum((y - slope * x) ** 2))
-    dof = max(1, x.size - 1)
-    return slope, math.sqrt(rss / dof / sxx), r_squared(y, rss)
-
-
-def _with_intercept(x: np.ndarray, y: np.ndarray) -> tuple[float, float, float]:
-    """Slope of y = a + b x, its standard error and the R²."""
-    result = stats.linregress(x, y)
-    return float(result.slope), float(result.stderr), float(result.rvalue**2)
 
 
 def _two_pass_fits(fwd: np.ndarray, rev: np.ndarray, valid: np.ndarray,
@@ -111,20 +106,19 @@ def _two_pass_fits(fwd: np.ndarray, rev: np.ndarray, valid: np.ndarray,
              f"<{int(np.count_nonzero(valid))} such slices>")
     log_ratio = np.full(n, math.nan)
     log_ratio[valid] = np.log(rev[valid] / fwd[valid])
-    b, se_b, r2_rate = _through_origin(exposures[valid], log_ratio[valid])
-    t_rate = float(stats.t.ppf(0.975, max(1, np.count_nonzero(valid) - 1)))
+    ratio_fit = fit_through_origin(exposures[valid], log_ratio[valid])
+    b, se_b = ratio_fit.slope, ratio_fit.slope_se
+    low_b, high_b = ratio_fit.slope_interval()
     rate = float(-math.expm1(b))
-    rate_ci = (float(-math.expm1(b + t_rate * se_b)), float(-math.expm1(b - t_rate * se_b)))
+    rate_ci = (float(-math.expm1(high_b)), float(-math.expm1(low_b)))
     unbleached = fwd / np.exp(b * i)
-    c, se_c, r2_len = _with_intercept(i[valid] * z_step, np.log(unbleached[valid]))
+    depth_fit = fit_line(i[valid] * z_step, np.log(unbleached[valid]))
     # u = ln S_fwd - i b: the slope on z inherits the uncertainty of b / z_step
-    se_total = math.sqrt(se_c**2 + (se_b / z_step) ** 2)
-    t_len = float(stats.t.ppf(0.975, max(1, np.count_nonzero(valid) - 2)))
-    length = -1.0 / c if c < 0 else math.inf
-    steep, shallow = c - t_len * se_total, c + t_len * se_total
-    length_ci = (-1.0 / steep if steep < 0 else math.inf, -1.0 / shallow if shallow < 0 else math.inf)
-    return {"rate": rate, "rate_ci": rate_ci, "r2_rate": r2_rate, "length": length,
-            "length_ci": length_ci, "r2_length": r2_len, "log_ratio": log_ratio,
+    se_total = math.sqrt(depth_fit.slope_se**2 + (se_b / z_step) ** 2)
+    slope_ci = t_interval(depth_fit.slope, se_total, depth_fit.dof)
+    return {"rate": rate, "rate_ci": rate_ci, "r2_rate": ratio_fit.r_squared,
+            "length": decay_length(depth_fit.slope), "length_ci": decay_length_interval(slope_ci),
+            "r2_length": depth_fit.r_squared, "depth_fit": depth_fit, "log_ratio": log_ratio,
             "exposures": exposures, "unbleached": unbleached,
             "lost": float(-math.expm1(b * (n - 1)))}
 
@@ -209,13 +203,14 @@ def separate_bleaching(
     n = int(fwd_moved.shape[0])
     if n < 3:
         fail("forward", "at least 3 slices along the depth axis", f"<{n} slices>")
-    background = sample_background(fwd_moved)
+    background = frames_background(fwd_moved)
     fwd, rev, valid = per_slice_masks(fwd_moved, rev_moved, progress=progress)
     fits = _two_pass_fits(fwd, rev, valid, z_step)
     return TwoPassResult(
         rate_per_exposure=fits["rate"], rate_interval=fits["rate_ci"], length_um=fits["length"],
         length_interval=fits["length_ci"], r_squared_rate=fits["r2_rate"],
-        r_squared_length=fits["r2_length"], fraction_lost=fits["lost"],
+        r_squared_length=fits["r2_length"], depth_intercept=fits["depth_fit"].intercept,
+        depth_slope=fits["depth_fit"].slope, fraction_lost=fits["lost"],
         forward_profile=frozen(fwd), reverse_profile=frozen(rev),
         log_ratio=frozen(fits["log_ratio"]), exposures=frozen(fits["exposures"]),
         unbleached_profile=frozen(fits["unbleached"]), offset=background.level, n_slices=n,

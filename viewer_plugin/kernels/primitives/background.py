@@ -1,10 +1,26 @@
-"""Background levels shared by the attenuation and bleaching kernels.
+"""Sigma-clipped background level: the one background estimate of every kernel.
 
-A detector offset and the background around sparse structures are estimated
-with a sigma-clipped *mean* of the dim voxels. The mean (not a low percentile
-or the minimum) is used because shot and read noise spread background voxels
-symmetrically enough that their mean stays unbiased, while a percentile sits
-below the true level by an amount that grows with the noise.
+What it is: the mean and standard deviation of the dim voxels, found by
+sigma clipping. The clipping starts from the median and the normalised
+median absolute deviation (MAD, ``1.4826 * median|v - median|``): one pass
+keeps the values within ``n_sigma`` of the median, then
+:func:`scipy.stats.sigmaclip` iterates on what is left (mean and standard
+deviation of the kept values, clip at ``n_sigma`` of them, until nothing more
+is removed). The robust start matters where structure covers a large part of
+the field: a start from the mean and standard deviation of all values (what
+``sigmaclip`` alone does) keeps everything when a quarter or more of the
+voxels are bright, and reports the average of structure and background.
+
+Why a mean: shot and read noise spread background voxels symmetrically
+enough that their mean stays unbiased, while a low percentile sits below the
+true level by an amount that grows with the noise.
+
+Where it is used: :func:`background_level` and :func:`slice_background`
+(public), the display limits of the projections, the per-frame backgrounds
+of the bleaching check and the two-pass separation (:func:`clipped_stats`,
+:func:`frames_background`), and the per-slice backgrounds of the attenuation
+estimate (:func:`rows_background`, the compiled row-wise form
+:func:`clipped_rows` of the same clipping).
 """
 
 from __future__ import annotations
@@ -12,11 +28,36 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Any
 
+import numba
 import numpy as np
+from scipy.stats import sigmaclip
 
 from ..._shared.validation import check_int, check_number, check_stack, depth_first, is_dask
 
-__all__ = ["Background", "background_level", "slice_background", "clipped_rows"]
+__all__ = [
+    "Background",
+    "SliceBackground",
+    "background_level",
+    "clipped_rows",
+    "clipped_stats",
+    "frames_background",
+    "rows_background",
+    "slice_background",
+]
+
+#: Scale of the MAD to the standard deviation of a normal distribution.
+MAD_TO_SIGMA = 1.4826
+
+#: Frames sampled along the acquisition axis by :func:`frames_background`.
+BACKGROUND_FRAMES = 16
+
+
+@dataclass(frozen=True)
+class SliceBackground:
+    """Background level and spread of every slice (float64 arrays, one value per slice)."""
+
+    level: np.ndarray
+    sigma: np.ndarray
 
 
 @dataclass(frozen=True)
@@ -38,26 +79,112 @@ class Background:
     fraction: float
 
 
-def _clipped_stats(values: np.ndarray, *, n_sigma: float, max_iter: int = 20) -> Background:
-    """Iterative upper/lower sigma clipping starting from median and MAD."""
+def clipped_stats(values: np.ndarray, *, n_sigma: float = 3.0) -> Background:
+    """Sigma-clipped mean and spread of *values* (non-finite values are ignored).
+
+    One clip around the median at *n_sigma* normalised MADs, then
+    :func:`scipy.stats.sigmaclip` with *n_sigma* on both sides. When more
+    than half of the values are equal (MAD 0) the level is that value and
+    the spread 0.
+
+    Examples
+    --------
+    >>> stats = clipped_stats(np.array([1.0, 2.0, 3.0, 2.0, 100.0]))
+    >>> stats.level, stats.fraction
+    (2.0, 0.8)
+    """
+    values = np.asarray(values, dtype=np.float64).ravel()
     values = values[np.isfinite(values)]
     if values.size == 0:
         return Background(float("nan"), float("nan"), 0.0)
-    total = values.size
     center = float(np.median(values))
-    spread = 1.4826 * float(np.median(np.abs(values - center)))
-    keep = values
-    for _ in range(max_iter):
-        if spread == 0:
-            keep = values[values == center]
-            break
-        new_keep = values[np.abs(values - center) <= n_sigma * spread]
-        if new_keep.size == keep.size and _ > 0:
-            break
-        keep = new_keep
-        center = float(np.mean(keep, dtype=np.float64))
-        spread = float(np.std(keep, dtype=np.float64))
-    return Background(center, spread, keep.size / total)
+    spread = MAD_TO_SIGMA * float(np.median(np.abs(values - center)))
+    limit = n_sigma * spread
+    start = values[(values >= center - limit) & (values <= center + limit)]
+    kept = sigmaclip(start, n_sigma, n_sigma).clipped
+    return Background(float(np.mean(kept)), float(np.std(kept)), kept.size / values.size)
+
+
+def clipped_rows(values: np.ndarray, *, n_sigma: float = 3.0) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The clipping of :func:`clipped_stats` for every row of a 2-D array, compiled.
+
+    For row-wise data such as a lateral sample of every slice, where a
+    Python loop over :func:`clipped_stats` would cost more than the clipping.
+    Non-finite entries (NaN marks excluded voxels) are ignored.
+
+    Parameters
+    ----------
+    values : ndarray, shape (n_rows, n_values)
+        One row per slice; other shapes are flattened after the first axis.
+    n_sigma : float
+        Clipping half-width in standard deviations (common practice: 3).
+
+    Returns
+    -------
+    level, sigma, fraction : ndarray of float64, shape (n_rows,)
+        NaN level and sigma (fraction 0) for a row without finite values.
+
+    Examples
+    --------
+    >>> rows = np.array([[1.0, 2.0, 3.0, 2.0, 100.0], [5.0, 5.0, 5.0, 5.0, 5.0]])
+    >>> level, sigma, fraction = clipped_rows(rows)
+    >>> level.round(3).tolist(), fraction.tolist()
+    ([2.0, 5.0], [0.8, 1.0])
+    """
+    values = np.asarray(values)
+    values = values.reshape(values.shape[0], -1)
+    if values.dtype not in (np.float32, np.float64):
+        values = values.astype(np.float64)
+    return _clipped_rows(values, float(n_sigma))
+
+
+@numba.njit(cache=True, nogil=True)
+def _clip_once(data, n, center, limit):  # pragma: no cover - compiled
+    """Move the values of data[:n] within *limit* of *center* to the front; return their count."""
+    kept = 0
+    for i in range(n):
+        v = data[i]
+        if v >= center - limit and v <= center + limit:
+            data[kept] = v
+            kept += 1
+    return kept
+
+
+@numba.njit(cache=True, nogil=True)
+def _gather_finite(row, data):  # pragma: no cover - compiled
+    """Copy the finite values of *row* to the front of *data*; return their count."""
+    n = 0
+    for v in row:
+        if np.isfinite(v):
+            data[n] = v
+            n += 1
+    return n
+
+
+@numba.njit(cache=True, nogil=True)
+def _clipped_rows(values, n_sigma):  # pragma: no cover - compiled
+    level = np.full(values.shape[0], np.nan)
+    sigma = np.full(values.shape[0], np.nan)
+    fraction = np.zeros(values.shape[0])
+    data = np.empty(values.shape[1])
+    for r in range(values.shape[0]):
+        n = _gather_finite(values[r], data)
+        if n == 0:
+            continue
+        center = np.median(data[:n])
+        spread = 1.4826 * np.median(np.abs(data[:n] - center))
+        kept = _clip_once(data, n, center, n_sigma * spread)
+        while True:  # scipy.stats.sigmaclip: clip the kept values until none is removed
+            mean = data[:kept].mean()
+            std = data[:kept].std()
+            now = _clip_once(data, kept, mean, n_sigma * std)
+            if now == kept:
+                break
+            kept = now
+        level[r] = mean
+        sigma[r] = std
+        fraction[r] = kept / n
+    return level, sigma, fraction
 
 
 def _sample(plane_or_stack: Any, step: int) -> np.ndarray:
@@ -92,6 +219,11 @@ def background_level(
     ParameterError
         For a non-numeric or empty array, or bad *n_sigma* / *step*.
 
+    References
+    ----------
+    .. [1] ``scipy.stats.sigmaclip`` (the iteration), started from the median
+       and the normalised median absolute deviation.
+
     Examples
     --------
     >>> rng = np.random.default_rng(0)
@@ -103,7 +235,7 @@ def background_level(
     stack, _ = check_stack(stack, min_ndim=2)
     n_sigma = check_number(n_sigma, name="n_sigma", low=0, low_open=True)
     step = check_int(step, name="step", low=1)
-    return _clipped_stats(_sample(stack, step), n_sigma=n_sigma)
+    return clipped_stats(_sample(stack, step), n_sigma=n_sigma)
 
 
 def slice_background(
@@ -129,124 +261,36 @@ def slice_background(
     ------
     ParameterError
         For bad input, as :func:`background_level`.
+
+    Examples
+    --------
+    >>> data = np.stack([np.full((8, 8), 10.0), np.full((8, 8), 20.0)])
+    >>> slice_background(data, step=1).tolist()
+    [10.0, 20.0]
     """
     stack, axis = check_stack(stack, axis=axis)
     n_sigma = check_number(n_sigma, name="n_sigma", low=0, low_open=True)
     step = check_int(step, name="step", low=1)
     moved = depth_first(stack, axis)
     return np.array(
-        [_clipped_stats(_sample(moved[i], step), n_sigma=n_sigma).level for i in range(moved.shape[0])]
+        [clipped_stats(_sample(moved[i], step), n_sigma=n_sigma).level for i in range(moved.shape[0])],
+        dtype=np.float64,
     )
 
 
-def clipped_rows(
-    values: np.ndarray, *, n_sigma: float = 3.0, max_iter: int = 20
-) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Sigma-clipped mean, spread and kept fraction of every row of a 2-D array.
+def frames_background(moved: Any, *, n_frames: int = BACKGROUND_FRAMES, step: int = 4) -> Background:
+    """Background of up to *n_frames* evenly spaced frames of a depth-first array.
 
-    The vectorised form of the clipping used by :func:`background_level`:
-    each row starts from its median and MAD and is clipped symmetrically at
-    *n_sigma* standard deviations until the kept set stops changing.
-    Non-finite entries (NaN marks excluded voxels) are ignored.
-
-    Parameters
-    ----------
-    values : ndarray, shape (n_rows, n_values)
-        One row per slice (e.g. a lateral sample of each slice).
-    n_sigma : float
-        Clipping half-width in standard deviations (common practice: 3).
-    max_iter : int
-        Upper bound on clipping passes.
-
-    Returns
-    -------
-    level, sigma, fraction : ndarray of float64, shape (n_rows,)
-        NaN level and sigma (fraction 0) for a row without finite values.
-
-    Examples
-    --------
-    >>> rows = np.array([[1.0, 2.0, 3.0, 2.0, 100.0], [5.0, 5.0, 5.0, 5.0, 5.0]])
-    >>> level, sigma, fraction = clipped_rows(rows)
-    >>> level.round(3).tolist(), fraction.tolist()
-    ([2.0, 5.0], [0.8, 1.0])
+    The lateral stride is taken first (a view) and the frames picked from it,
+    so only the small sample is copied or computed for dask input.
     """
-    values = np.asarray(values)
-    if values.ndim != 2:
-        values = values.reshape(values.shape[0], -1)
-    if _clipped_rows_numba is not None and values.dtype in (np.float32, np.float64):
-        level, sigma, fraction = _clipped_rows_numba(values, float(n_sigma), int(max_iter))
-        return level, sigma, fraction
-    rows = [_clipped_stats(np.asarray(row, dtype=np.float64), n_sigma=n_sigma, max_iter=max_iter)
-            for row in values]
-    return (np.array([r.level for r in rows], dtype=np.float64),
-            np.array([r.sigma for r in rows], dtype=np.float64),
-            np.array([r.fraction for r in rows], dtype=np.float64))
+    n = int(moved.shape[0])
+    picks = np.unique(np.linspace(0, n - 1, min(n, n_frames)).round().astype(int))
+    return clipped_stats(_sample(moved[..., ::step, ::step][picks], 1))
 
 
-def _make_clipped_rows_numba() -> Any:
-    """Compile the row-wise clipping with numba (None when numba is unavailable)."""
-    try:
-        import numba
-    except Exception:  # noqa: BLE001 - numba is optional at run time
-        return None
-
-    @numba.njit(cache=True, nogil=True)
-    def clipped(values, n_sigma, max_iter):  # pragma: no cover - compiled
-        n_rows, n_cols = values.shape
-        level = np.full(n_rows, np.nan)
-        sigma = np.full(n_rows, np.nan)
-        fraction = np.zeros(n_rows)
-        buf = np.empty(n_cols)
-        for r in range(n_rows):
-            n = 0
-            for c in range(n_cols):
-                v = values[r, c]
-                if np.isfinite(v):
-                    buf[n] = v
-                    n += 1
-            if n == 0:
-                continue
-            data = buf[:n]
-            center = np.median(data)
-            spread = 1.4826 * np.median(np.abs(data - center))
-            kept = n
-            if spread == 0:
-                kept = 0
-                for v in data:
-                    if v == center:
-                        kept += 1
-                level[r] = center
-                sigma[r] = 0.0
-                fraction[r] = kept / n
-                continue
-            previous = -1
-            for it in range(max_iter):
-                limit = n_sigma * spread
-                count = 0
-                total = 0.0
-                for v in data:
-                    if abs(v - center) <= limit:
-                        count += 1
-                        total += v
-                if count == 0 or (it > 0 and count == previous):
-                    break
-                mean = total / count
-                square = 0.0
-                for v in data:
-                    if abs(v - center) <= limit:
-                        square += (v - mean) ** 2
-                center = mean
-                spread = np.sqrt(square / count)
-                previous = count
-                kept = count
-                if spread == 0:
-                    break
-            level[r] = center
-            sigma[r] = spread
-            fraction[r] = kept / n
-        return level, sigma, fraction
-
-    return clipped
-
-
-_clipped_rows_numba = _make_clipped_rows_numba()
+def rows_background(sample: np.ndarray, *, n_sigma: float = 3.0, max_values: int = 4096) -> SliceBackground:
+    """Sigma-clipped background of every row of a lateral sample (about *max_values* a row)."""
+    thin = sample[:, :: max(1, sample.shape[1] // max_values)]
+    level, sigma, _ = clipped_rows(thin, n_sigma=n_sigma)
+    return SliceBackground(level=level, sigma=sigma)
