@@ -1,8 +1,10 @@
 """The ``stackdepth`` command line: drives kernels and io, with no GUI.
 
-Exit statuses: 0 success; 1 unexpected internal failure; 2 bad input or
-usage (one line on stderr starting ``stackdepth: error:``); 3 a check
-found the data outside the tolerance (``stackdepth bleaching``).
+Exit statuses: 0 success (for ``stackdepth bleaching``: the whole 95 %
+interval of the loss within the tolerance); 1 unexpected internal failure;
+2 bad input or usage (one line on stderr starting ``stackdepth: error:``);
+3 a check found the data outside the tolerance (the whole interval above
+it); 4 a check was inconclusive (the interval spans the tolerance).
 """
 
 from __future__ import annotations
@@ -36,7 +38,8 @@ def build_parser() -> argparse.ArgumentParser:
             "depth attenuation and photobleaching checks. A research tool, not for clinical "
             "or diagnostic decisions."
         ),
-        epilog="Exit status: 0 ok, 2 bad input, 3 outside tolerance (bleaching), 1 internal error.",
+        epilog="Exit status: 0 ok, 2 bad input, 3 outside tolerance (bleaching), 4 inconclusive "
+               "against the tolerance (bleaching), 1 internal error.",
     )
     parser.add_argument("--version", action="version", version=f"stackdepth {__version__}")
     parser.add_argument("-v", "--verbose", action="store_true", help="log details to stderr")

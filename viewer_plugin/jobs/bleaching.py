@@ -8,7 +8,7 @@ from typing import Any
 
 from .._shared.progress import Progress
 from .._shared.validation import check_choice, check_number, fail
-from .choices import BLEACHING_CAVEAT, DEFAULT_TOLERANCE, EQUALISE_NOTE, TOLERANCE_NOTE
+from .choices import BLEACHING_CAVEAT, DEFAULT_TOLERANCE, EQUALISE_NOTE, TOLERANCE_NOTE, VERDICT_RULE
 from .provenance import provenance
 from .stack import Corrected, Selection, axis_step, geometry_of, select
 
@@ -21,7 +21,6 @@ __all__ = [
     "correct_checked",
     "equalise_checked",
     "separate_passes",
-    "two_pass_verdict",
 ]
 
 
@@ -59,8 +58,14 @@ class Checked:
     provenance: dict[str, Any]
 
     @property
+    def verdict(self) -> str:
+        """``"within"``, ``"inconclusive"`` or ``"exceeds"`` (the 95 % interval of the loss
+        against the tolerance)."""
+        return str(self.report.verdict)
+
+    @property
     def exceeds(self) -> bool:
-        """Whether the loss exceeds the tolerance."""
+        """Whether the whole 95 % interval of the loss is above the tolerance."""
         return bool(self.report.exceeds_tolerance)
 
 
@@ -126,7 +131,8 @@ def check_bleaching(selection: Selection, options: BleachingOptions, *,
                                 axis_kind=kind, progress=progress)
     record = provenance("bleaching", selection, axis=kind, axes=stack.axes, interval=interval,
                         interval_unit="s" if kind == "time" else "\u00b5m", interval_from=source,
-                        tolerance=tolerance, tolerance_note=TOLERANCE_NOTE)
+                        tolerance=tolerance, tolerance_note=TOLERANCE_NOTE,
+                        verdict_rule=VERDICT_RULE)
     options = dataclasses.replace(options, axis_kind=kind, interval=interval, tolerance=tolerance)
     return Checked(selection, report, axis, options, source, notes, record)
 
@@ -165,21 +171,23 @@ def bleaching_record(checked: Checked) -> dict[str, Any]:
 
 @dataclass(frozen=True)
 class TwoPass:
-    """A two-pass separation with its verdict against the tolerance."""
+    """A two-pass separation; its verdict against the tolerance is in the result."""
 
     result: Any
     tolerance: float
-    exceeds: bool
-    verdict: str
     notes: tuple[str, ...]
     provenance: dict[str, Any]
 
+    @property
+    def verdict(self) -> str:
+        """``"within"``, ``"inconclusive"`` or ``"exceeds"``: the 95 % interval of the loss
+        of the forward pass against the tolerance."""
+        return str(self.result.verdict)
 
-def two_pass_verdict(result: Any, tolerance: float) -> tuple[bool, str]:
-    """Whether the two-pass loss exceeds the tolerance, and the sentence that says so."""
-    exceeds = bool(result.fraction_lost > tolerance)
-    word = "exceeds" if exceeds else "is within"
-    return exceeds, f"That loss {word} the {tolerance * 100:.3g} % tolerance."
+    @property
+    def exceeds(self) -> bool:
+        """Whether the whole 95 % interval of the forward pass's loss is above the tolerance."""
+        return bool(self.result.exceeds_tolerance)
 
 
 def separate_passes(forward: Selection, reverse: Selection, *, z_step: float | None = None,
@@ -219,10 +227,11 @@ def separate_passes(forward: Selection, reverse: Selection, *, z_step: float | N
              f"<{tuple(rev.data.shape)} and {rev.axes}>")
     axis = fwd.axes.index("Z")
     step, source, notes = axis_step(fwd, axis, z_step)
-    result = separate_bleaching(fwd.data, rev.data, z_step=step, axis=axis, progress=progress)
-    exceeds, verdict = two_pass_verdict(result, tolerance)
+    result = separate_bleaching(fwd.data, rev.data, z_step=step, tolerance=tolerance, axis=axis,
+                                progress=progress)
     record = provenance("two-pass bleaching", forward, reverse_file=
                         str(rev.path) if rev.path is not None else rev.name, axis="z",
                         z_step_um=step, z_step_from=source, tolerance=tolerance,
-                        tolerance_note=TOLERANCE_NOTE, exceeds_tolerance=exceeds, verdict=verdict)
-    return TwoPass(result, tolerance, exceeds, verdict, notes, record)
+                        tolerance_note=TOLERANCE_NOTE, verdict=result.verdict,
+                        verdict_rule=VERDICT_RULE)
+    return TwoPass(result, tolerance, notes, record)

@@ -10,7 +10,7 @@ from __future__ import annotations
 from ..kernels.attenuation import CAUTION as ATTENUATION_CAVEAT
 from ..kernels.attenuation import MODELS as ATTENUATION_MODELS
 from ..kernels.bleaching import RESCALE
-from ..kernels.bleaching.text import DEPTH_CAVEAT, TWO_PASS_CAVEAT
+from ..kernels.bleaching.text import DEPTH_CAVEAT, TWO_PASS_CAVEAT, VERDICT_WORDS, VERDICTS
 from ..kernels.projection import METHODS as DEPTH_CODED
 from ..kernels.projection import VIEWS
 
@@ -37,6 +37,10 @@ __all__ = [
     "TOLERANCE_NOTE",
     "TWO_PASS_CAVEAT",
     "TWO_PASS_HELP",
+    "VERDICTS",
+    "VERDICT_COLOURS",
+    "VERDICT_RULE",
+    "VERDICT_WORDS",
     "VIEWS",
     "labelled",
 ]
@@ -114,7 +118,23 @@ EQUALISE_NOTE = ("Equalise contrast to frame 0 (for display and segmentation, no
                  "intensities): histogram specification changes the relation between "
                  "intensities.")
 TWO_PASS_HELP = ("Two passes over the same stack, the second deepest-first (both stored "
-                 "surface first). Needs one-photon data; see docs/bleaching.md.")
+                 "surface first). The rate needs one-photon data; with two-photon data a "
+                 "uniformly dimmer second pass shows as a pass ratio below 1. See "
+                 "docs/bleaching.md.")
+
+#: How the verdict is decided (recorded with every check).
+VERDICT_RULE = ("95 % interval of the fraction lost against the tolerance: within when the whole "
+                "interval is at or below it, exceeds when the whole interval is above it, "
+                "inconclusive when it spans it")
+
+#: Background and text colour of each verdict in the dock, beside its words (never colour
+#: alone): blue, yellow and vermillion of the Okabe-Ito palette, which differ in lightness
+#: as well as hue and stay apart under the common colour-vision deficiencies.
+VERDICT_COLOURS = {
+    "within": ("#0072B2", "#FFFFFF"),
+    "inconclusive": ("#F0E442", "#000000"),
+    "exceeds": ("#D55E00", "#000000"),
+}
 
 def labelled(labels: dict[str, str], names: tuple[str, ...] | None = None) -> list[tuple[str, str]]:
     """(label, name) pairs for a dock's drop-down, in the order of *names* (default: *labels*)."""

@@ -13,6 +13,7 @@ import numpy as np
 from matplotlib.figure import Figure
 
 from ..kernels.bleaching import BleachingReport, TwoPassResult
+from ..kernels.bleaching.text import VERDICT_WORDS, format_interval
 
 __all__ = ["bleaching_figure", "two_pass_figure", "time_axis"]
 
@@ -90,15 +91,24 @@ def bleaching_figure(
     ci = f" (95 % CI {lo * 100:.3g} to {hi * 100:.3g})" if math.isfinite(lo) else ""
     unit = "frame" if report.axis_kind == "time" else "slice"
     ax.set_title(f"k = {report.rate_per_frame * 100:.3g} % per {unit}{ci}; "
-                 f"lost {report.fraction_lost * 100:.3g} %", fontsize=10)
+                 f"lost {report.fraction_lost * 100:.3g} %\n{_loss_text(report)}", fontsize=10)
     if report.axis_kind == "depth":
         ax.text(0.98, 0.97, "bleaching and attenuation combined\n(one stack cannot separate them)",
                 transform=ax.transAxes, ha="right", va="top", fontsize=8, color="#a05000")
     return fig
 
 
+def _loss_text(result: BleachingReport | TwoPassResult) -> str:
+    """``'verdict: inconclusive (95 % interval of the loss a–b %)'``: the verdict and its interval."""
+    interval = result.fraction_lost_interval
+    words = f"verdict: {VERDICT_WORDS[result.verdict].lower()}"
+    if not all(math.isfinite(v) for v in interval):
+        return words
+    return f"{words} (95 % interval of the loss {format_interval(interval)})"
+
+
 def _attenuation_line(result: TwoPassResult) -> tuple[np.ndarray, np.ndarray] | None:
-    """The bleaching-free depth fit of the result, ``exp(intercept + slope * z)``."""
+    """The depth fit of the equal-exposure profile, ``exp(intercept + slope * z)``."""
     if not (math.isfinite(result.depth_intercept) and math.isfinite(result.depth_slope)):
         return None
     z = result.depths
@@ -111,8 +121,9 @@ def two_pass_figure(
     truth: dict[str, Any] | None = None,
     figure: Figure | None = None,
 ) -> Figure:
-    """Left: log ratio of the two passes against the extra exposures (slope ln(1 - k)).
-    Right: the forward profile with bleaching removed against depth (slope -1/ℓ).
+    """Left: log ratio of the two passes against the extra exposures (slope ln(1 - k),
+    intercept ln of the pass ratio). Right: the equal-exposure profile √(forward·reverse)
+    against depth (slope -1/ℓ).
 
     *truth* (demo metadata) adds the true rate and length as dotted lines.
     """
@@ -121,8 +132,10 @@ def two_pass_figure(
     x, y = result.exposures, result.log_ratio
     left.plot(x, y, "o", ms=4, color=MEASURED, label="ln(reverse / forward) per slice")
     grid = np.array([0.0, float(x.max())])
-    left.plot(grid, math.log1p(-result.rate_per_exposure) * grid, "-", lw=2, color=MODEL,
-              label=f"fit: k = {result.rate_per_exposure * 100:.3g} % per exposure")
+    intercept = math.log(result.pass_ratio)
+    left.plot(grid, intercept + math.log1p(-result.rate_per_exposure) * grid, "-", lw=2,
+              color=MODEL, label=f"fit: k = {result.rate_per_exposure * 100:.3g} % per exposure, "
+              f"pass ratio {result.pass_ratio:.3f}")
     truth = truth or {}
     k_true = truth.get("bleach_rate_per_exposure")
     if k_true is not None:
@@ -130,14 +143,17 @@ def two_pass_figure(
                   label=f"true k = {k_true * 100:.3g} % (demo)")
     left.set_xlabel("extra exposures of the reverse pass (2N − 1 − 2i)")
     left.set_ylabel("ln(reverse / forward)")
-    left.set_title("bleaching (structure cancels)", fontsize=10)
+    left.set_title(f"bleaching: the forward pass lost {result.fraction_lost * 100:.3g} %\n"
+                   f"{_loss_text(result)}", fontsize=9)
     left.grid(alpha=0.3)
     left.legend(fontsize=8, loc="lower left")
 
-    z, u = result.depths, result.unbleached_profile
-    used = np.isfinite(result.log_ratio) & (u > 0)
-    left_out = ~np.isfinite(result.log_ratio) & (u > 0)
-    right.semilogy(z[used], u[used], "o", ms=4, color=MEASURED, label="forward / (1 − k)^i")
+    z, u = result.depths, result.geometric_profile
+    with np.errstate(invalid="ignore"):
+        used = np.isfinite(result.log_ratio) & (u > 0)
+        left_out = ~np.isfinite(result.log_ratio) & (u > 0)
+    right.semilogy(z[used], u[used], "o", ms=4, color=MEASURED,
+                   label="√(forward · reverse): equal exposures")
     if left_out.any():
         right.semilogy(z[left_out], u[left_out], "o", ms=4, mfc="none", color=LIMIT,
                        label="left out (no clear foreground)")
@@ -150,7 +166,7 @@ def two_pass_figure(
             right.semilogy(line[0], line[1][0] * np.exp(-(line[0] - line[0][0]) / l_true), ":",
                            lw=2, color=TRUTH, label=f"true ℓ = {l_true:.3g} µm (demo)")
     right.set_xlabel("depth (µm)")
-    right.set_ylabel("foreground signal, bleaching removed")
+    right.set_ylabel("foreground signal, same exposures per slice")
     right.set_title("attenuation with depth", fontsize=10)
     right.grid(alpha=0.3, which="both")
     right.legend(fontsize=8, loc="lower left")

@@ -1,9 +1,11 @@
 """The "Bleaching check" dock widget: did the signal fade, by how much, within tolerance?
 
 It only translates between layers and :mod:`viewer_plugin.jobs.bleaching`: the
-check runs off the GUI thread, shows a plot and a verdict sentence, and a
-correction is added as a new layer; the source layer and its data are never
-changed. A two-pass mode separates bleaching from attenuation.
+check runs off the GUI thread, shows a plot, the verdict in words on a
+coloured badge (within tolerance, inconclusive, exceeds tolerance) and the
+verdict sentence, and a correction is added as a new layer; the source layer
+and its data are never changed. A two-pass mode separates bleaching from
+attenuation.
 """
 
 from __future__ import annotations
@@ -19,6 +21,8 @@ from ..jobs.choices import (
     RESCALE_LABELS,
     TOLERANCE_NOTE,
     TWO_PASS_HELP,
+    VERDICT_COLOURS,
+    VERDICT_WORDS,
     labelled,
 )
 from ._common import result_text, wrapped
@@ -27,9 +31,16 @@ from ._dock import StackDock, in_dock_words, layer_letters, layer_stack
 if TYPE_CHECKING:  # pragma: no cover
     import napari
 
-__all__ = ["BleachingWidget", "SINGLE", "TWO_PASS"]
+__all__ = ["BleachingWidget", "SINGLE", "TWO_PASS", "verdict_badge_style"]
 
 SINGLE, TWO_PASS = "single", "two-pass"
+
+
+def verdict_badge_style(verdict: str) -> str:
+    """Qt style sheet of the verdict badge: the verdict's own background and text colour."""
+    background, text = VERDICT_COLOURS[verdict]
+    return (f"QLabel {{ background-color: {background}; color: {text}; font-weight: bold; "
+            "padding: 4px 8px; border-radius: 3px; }")
 
 
 class BleachingWidget(StackDock):
@@ -86,6 +97,8 @@ class BleachingWidget(StackDock):
         self.two_pass_help = wrapped(Label(value=TWO_PASS_HELP))
         self.check_button = PushButton(text="Check")
         self.correct_button = PushButton(text="Correct (new layer)")
+        self.badge = Label(value="")
+        self.badge.visible = False
         self.verdict = result_text(lines=5)
         self.caveat = result_text(lines=4)
         self.caution = wrapped(Label(value=BLEACHING_CAVEAT + " The original layer is kept."))
@@ -96,8 +109,8 @@ class BleachingWidget(StackDock):
         self.action_buttons += [self.check_button, self.correct_button]
 
     def _add_bottom(self) -> None:
-        self.extend([*self.action_buttons, self.cancel_button, self.status, self.verdict,
-                     self.caveat, self.caution])
+        self.extend([*self.action_buttons, self.cancel_button, self.status, self.badge,
+                     self.verdict, self.caveat, self.caution])
 
     def _add_canvas(self) -> None:
         from matplotlib.backends.backend_qtagg import FigureCanvasQTAgg
@@ -139,6 +152,7 @@ class BleachingWidget(StackDock):
             self._pick_reverse()
         self.verdict.value = ""
         self.caveat.value = ""
+        self._show_verdict(None)
 
     def _layer_changed_hook(self, layer: Any) -> None:
         if not hasattr(self, "verdict"):
@@ -150,6 +164,7 @@ class BleachingWidget(StackDock):
             self.axis_kind.value = "time" if self.axis_letter() == "T" else "depth"
         self.z_hint.visible = bool(self.z_hint.value) and self.mode.value == SINGLE
         self.verdict.value = ""
+        self._show_verdict(None)
 
     def _on_axis_kind(self, kind: str) -> None:
         """Point the (hidden) axis picker at the time axis or the depth axis."""
@@ -275,7 +290,8 @@ class BleachingWidget(StackDock):
             from ..plots.bleaching import two_pass_figure
 
             self.two_pass = two.result
-            text = f"{two.result.summary} {two.verdict}"
+            self._show_verdict(two.verdict)
+            text = two.result.summary
             if "bleach_rate_per_exposure" in truth:
                 text += (f" Demo truth: {truth['bleach_rate_per_exposure'] * 100:.3g} % per "
                          f"exposure, {truth.get('attenuation_length_um', math.nan):.3g} \u00b5m.")
@@ -292,6 +308,7 @@ class BleachingWidget(StackDock):
         report = checked.report
         truth = checked.selection.stack.truth or {}
         truth_rate = truth.get("bleach_rate_per_frame") if report.axis_kind == "time" else None
+        self._show_verdict(report.verdict)
         text = f"{layer.name}{note}: {report.summary}"
         if truth_rate is not None:
             text += f" Demo truth: {truth_rate * 100:.3g} % per frame."
@@ -299,3 +316,15 @@ class BleachingWidget(StackDock):
         self.caveat.value = report.caveat
         bleaching_figure(report, truth_rate=truth_rate, figure=self.figure)
         self.canvas.draw_idle()
+
+    def _show_verdict(self, verdict: str | None) -> None:
+        """The verdict badge: its words on its own colour (hidden when there is no result)."""
+        if not hasattr(self, "badge"):
+            return
+        if verdict is None:
+            self.badge.value = ""
+            self.badge.visible = False
+            return
+        self.badge.value = VERDICT_WORDS[verdict]
+        self.badge.native.setStyleSheet(verdict_badge_style(verdict))
+        self.badge.visible = True

@@ -2,7 +2,8 @@
 
 ``estimate_bleaching`` fits a first-order decay (or, when the F-test finds it
 significantly better, a plateau or a second component) to the per-frame
-foreground signal and compares the loss with a tolerance.
+foreground signal and judges the 95 % interval of the loss against a
+tolerance: within, inconclusive or exceeds.
 
 One z-stack alone cannot tell bleaching from depth attenuation (see
 :mod:`.two_pass`).
@@ -23,8 +24,8 @@ from ..primitives.fitting import r_squared
 from ..primitives.foreground import measure_depth_profile
 from . import models
 from ._common import frozen, frozen_bool, plain_fields
-from .measure import masked_profile, reference_mask
-from .text import DEPTH_CAVEAT, bleaching_summary
+from .measure import background_ceiling, masked_profile, reference_masks
+from .text import DEPTH_CAVEAT, bleaching_summary, judge_loss
 
 __all__ = ["BleachingReport", "estimate_bleaching", "MIN_CONTRAST"]
 
@@ -52,9 +53,14 @@ class BleachingReport:
         *interval* (seconds for a time axis, µm for a depth axis); ``inf`` when
         the model never halves. Never negative.
     fraction_lost, fraction_lost_interval : float, tuple of float
-        ``1 - model[-1] / model[0]`` over the series, and its 95 % interval.
+        ``1 - model[-1] / model[0]`` over the series, and its 95 % interval
+        (mapped from ``rate_interval``).
+    verdict : str
+        From ``fraction_lost_interval`` against *tolerance*: ``"within"`` (the
+        whole interval at or below it), ``"exceeds"`` (the whole interval above
+        it) or ``"inconclusive"`` (the interval spans it, or there is none).
     exceeds_tolerance : bool
-        ``fraction_lost > tolerance``.
+        ``verdict == "exceeds"``.
     tolerance : float
         The fraction of loss accepted (user's choice; 0.10 is common practice).
     r_squared : float
@@ -62,7 +68,8 @@ class BleachingReport:
     model : str
         ``"single"``, ``"single+plateau"``, ``"double"`` or ``"none"`` (constant input).
     model_choice : str
-        Why this model was chosen (F-test result).
+        Why this model was chosen (F-test result, and the F-test's assumption
+        of independent frames).
     components : tuple of (share, rate) pairs
         Share of the first model value and per-frame rate of each decaying part.
     plateau : float
@@ -88,7 +95,8 @@ class BleachingReport:
     caveat : str
         For a depth axis: one stack cannot separate bleaching from attenuation.
     summary : str
-        One plain-language sentence with the verdict.
+        One plain-language sentence with the verdict and the interval it was
+        decided from (and one more when a richer model was chosen).
     """
 
     rate_per_frame: float
@@ -96,6 +104,7 @@ class BleachingReport:
     half_life: float
     fraction_lost: float
     fraction_lost_interval: tuple[float, float]
+    verdict: str
     exceeds_tolerance: bool
     tolerance: float
     r_squared: float
@@ -161,13 +170,15 @@ def _constant_report(n: int, level: float, interval: float, tolerance: float,
     noun = "time points" if axis_kind == "time" else "slices"
     return BleachingReport(
         rate_per_frame=0.0, rate_interval=(0.0, 0.0), half_life=math.inf, fraction_lost=0.0,
-        fraction_lost_interval=(0.0, 0.0), exceeds_tolerance=False, tolerance=tolerance,
+        fraction_lost_interval=(0.0, 0.0), verdict="within", exceeds_tolerance=False,
+        tolerance=tolerance,
         r_squared=math.nan, model="none", model_choice="constant input: no model fitted",
         components=(), plateau=0.0, profile=zeros, model_profile=zeros,
         used=frozen_bool(np.ones(n, dtype=bool)), offset=level,
         background_sigma=0.0, foreground_fraction=0.0, n_frames=n, interval=interval,
         axis_kind=axis_kind, caveat=DEPTH_CAVEAT if axis_kind == "depth" else "",
-        summary=f"The series is constant over {n} {noun}: no change of signal, no bleaching.",
+        summary=f"The series is constant over {n} {noun}: no change of signal, no bleaching; "
+                f"this is within the {tolerance * 100:.3g} % tolerance.",
     )
 
 
@@ -187,24 +198,24 @@ def _fit_report(signal: np.ndarray, used: np.ndarray, *, interval: float, tolera
     rate_ci = models.rate_interval(best, n, n_points=n_used)
     lost = 1.0 - model[-1] / model[0] if model[0] > 0 else math.nan
     lost_ci = _lost_interval(rate_ci, n)
-    significant = not (math.isfinite(lost_ci[0]) and lost_ci[0] <= 0.0 <= lost_ci[1])
+    verdict = judge_loss(lost_ci, tolerance) if math.isfinite(lost) else "inconclusive"
     components, plateau = _components(best)
     half = models.half_life_frames(best) * interval
-    exceeds = bool(math.isfinite(lost) and lost > tolerance)
     r2 = r_squared(signal[used], best.rss)
     return BleachingReport(
         rate_per_frame=rate, rate_interval=rate_ci, half_life=max(0.0, half), fraction_lost=lost,
-        fraction_lost_interval=lost_ci, exceeds_tolerance=exceeds, tolerance=tolerance,
+        fraction_lost_interval=lost_ci, verdict=verdict, exceeds_tolerance=verdict == "exceeds",
+        tolerance=tolerance,
         r_squared=r2, model=best.name, model_choice=why,
         components=components, plateau=plateau, profile=frozen(signal),
         model_profile=frozen(model), used=frozen_bool(used), offset=offset,
         background_sigma=sigma,
         foreground_fraction=fraction, n_frames=n, interval=interval, axis_kind=axis_kind,
         caveat=DEPTH_CAVEAT if axis_kind == "depth" else "",
-        summary=bleaching_summary(fraction_lost=lost, half_life=half, n_frames=n,
-                                  tolerance=tolerance, axis_kind=axis_kind,
-                                  significant=significant or exceeds,
-                                  r_squared=r2),
+        summary=bleaching_summary(fraction_lost=lost, fraction_lost_interval=lost_ci,
+                                  half_life=half, n_frames=n, tolerance=tolerance,
+                                  axis_kind=axis_kind, verdict=verdict, r_squared=r2,
+                                  model=best.name),
     )
 
 
@@ -239,8 +250,10 @@ def estimate_bleaching(
 
     The signal of each frame is the mean over a foreground mask of its voxels,
     minus its background level. For a time axis the mask is fixed: the Otsu
-    foreground of the (lightly smoothed) first frame, so a structure appearing
-    later is not counted. The slices of a single 3-D stack show different
+    foreground of the first frame's neighbour means (each voxel chosen on the
+    Gaussian mean of its neighbours, not on its own noisy value), so a
+    structure appearing later is not counted; the background is the mean of a
+    fixed set of dim voxels chosen the same way. The slices of a single 3-D stack show different
     structures, so for a depth axis (without *mask* or *offset*) the profile is
     the foreground profile that :func:`~viewer_plugin.kernels.estimate_attenuation`
     also measures (foreground chosen on the corrected stack, iterated), and slices it could
@@ -249,7 +262,10 @@ def estimate_bleaching(
     background standard deviations above the background are left out. First-order bleaching
     ``I_t = I_0 (1 - k)**t`` is fitted by least squares; a plateau or a second
     component replaces it only when the F-test finds it significantly better
-    (p < 0.01).
+    (p < 0.01; the F-test assumes independent frames). The verdict compares the
+    95 % interval of the fraction lost with *tolerance*: ``"within"`` when the
+    whole interval is at or below it, ``"exceeds"`` when the whole interval is
+    above it, ``"inconclusive"`` otherwise.
 
     Parameters
     ----------
@@ -269,10 +285,12 @@ def estimate_bleaching(
         *axis*). Default: the Otsu foreground described above.
     offset : float, optional
         Background level to subtract from every frame (e.g. a known detector
-        offset). Default: each frame's own background level, the sigma-clipped
-        mean of its dim voxels (``background_level``), so that a haze
-        fading with the signal does not bias the rate; corrections then use
-        the level of up to 16 frames sampled along the series.
+        offset). Default: each frame's own background level, so that a haze
+        fading with the signal does not bias the rate: for a time series the
+        mean of one fixed set of dim voxels chosen on the first frame (the same
+        voxels in every frame), for the slices of one stack the sigma-clipped
+        mean of each slice's dim voxels (``background_level``); corrections
+        then use the level of up to 16 frames sampled along the series.
     axis_kind : {"time", "depth"}, optional
         What *axis* is. Default: ``"time"`` for 4-D input, else ``"depth"``.
     progress : callable, optional
@@ -304,18 +322,17 @@ def estimate_bleaching(
        IEEE Trans. SMC 9(1):62-66, 1979, doi:10.1109/TSMC.1979.4310076.
     .. [2] A. J. Berglund, J. Chem. Phys. 2004, doi:10.1063/1.1636726 (non-uniform
        illumination gives a sum of exponentials).
-    .. [3] K. Miura, F1000Research 9:1494, 2020, doi:10.12688/f1000research.27171.1
-       (ratio, fitted-decay and histogram-matching corrections).
 
     Examples
     --------
     >>> frame = np.zeros((8, 32, 32)); frame[:, 8:24, 8:24] = 1000.0
     >>> series = 100 + frame * 0.95 ** np.arange(10)[:, None, None, None]
     >>> report = estimate_bleaching(series, interval=30.0)
-    >>> round(report.rate_per_frame, 3), report.model, report.exceeds_tolerance
-    (0.05, 'single', True)
-    >>> report.summary
-    'Signal fell by 37 % over 10 time points (half-life 6.76 min); this exceeds the 10 % tolerance.'
+    >>> round(report.rate_per_frame, 3), report.model, report.verdict, report.exceeds_tolerance
+    (0.05, 'single', 'exceeds', True)
+    >>> report.summary  # doctest: +NORMALIZE_WHITESPACE
+    'Signal fell by 37 % over 10 time points (half-life 6.76 min); this exceeds the 10 %
+    tolerance (95 % interval of the loss: 37.0–37.0 %).'
     """
     series, axis = check_stack(series, name="series", axis=axis)
     interval = check_number(interval, name="interval", low=0, low_open=True)
@@ -331,15 +348,21 @@ def estimate_bleaching(
     background = frames_background(moved)
     level = background.level if offset is None else check_number(offset, name="offset")
     total = n + 1
-    if mask is None and axis_kind == "time":
-        mask = reference_mask(moved)
+    if mask is not None and hasattr(mask, "compute"):
+        mask = np.asarray(mask.compute())
+    fixed_background, ceiling = None, math.inf
+    if axis_kind == "time":
+        mask, fixed_background = reference_masks(moved, mask)
         if not mask.any():
             mask = np.ones(moved.shape[1:], dtype=bool)
-    elif mask is not None and hasattr(mask, "compute"):
-        mask = np.asarray(mask.compute())
+        if fixed_background is not None and offset is None:
+            ceiling = background_ceiling(np.asarray(moved[0]), fixed_background)
+        else:
+            fixed_background = None
     report_progress(progress, 1, total)
-    raw, levels, fractions, sigmas = masked_profile(moved, mask, progress=progress, done=1,
-                                                    total=total)
+    raw, levels, fractions, sigmas = masked_profile(
+        moved, mask, background=fixed_background, ceiling=ceiling, progress=progress, done=1,
+        total=total)
     signal = raw - (levels if offset is None else level)
     finite = np.isfinite(signal)
     if np.count_nonzero(finite) < 2:

@@ -8,6 +8,9 @@ What it is:
   :func:`scipy.stats.linregress`, with weights ``1 / sigma**2`` that of
   :func:`scipy.optimize.curve_fit` with ``absolute_sigma=False``;
 * :func:`fit_through_origin` -- ``y = b x``, ``n - 1`` degrees of freedom;
+* :meth:`LineFit.slope_interval`, :meth:`LineFit.intercept_interval` --
+  Student-t intervals of the two coefficients (the intercept's standard error
+  as :func:`scipy.stats.linregress` gives it);
 * :func:`r_squared` -- centred (total sum of squares about the weighted mean)
   for fits with an intercept, *uncentred* (``sum w y**2``) for fits through
   the origin, where the centred form can be negative and is meaningless;
@@ -20,7 +23,7 @@ What it is:
 
 Where it is used: the exponential and smooth (local linear) models of the
 attenuation estimate, the select-and-fit loop of the per-slice foreground
-profile, the rate (through the origin) and depth fits of the two-pass
+profile, the log-ratio fit (slope and intercept) and the depth fit of the two-pass
 bleaching separation, the r² of the bleaching decay models, and the
 poor-fit notes of both features.
 """
@@ -71,6 +74,10 @@ class LineFit:
         Points fitted and residual degrees of freedom.
     x_mean, y_mean : float
         Weighted means of the points (the line passes through them when it has an intercept).
+    intercept_se : float
+        Standard error of the intercept, ``sqrt(rss / (n - 2) * (1 / sum w + x_mean**2 / Sxx))``
+        (that of :func:`scipy.stats.linregress`'s ``intercept_stderr`` with equal weights);
+        0 for a fit through the origin, whose intercept is fixed.
     """
 
     slope: float
@@ -81,10 +88,15 @@ class LineFit:
     dof: int
     x_mean: float
     y_mean: float
+    intercept_se: float = math.nan
 
     def slope_interval(self, level: float = 0.95) -> tuple[float, float]:
         """Student-t interval of the slope (``(-inf, inf)`` when undetermined)."""
         return t_interval(self.slope, self.slope_se, self.dof, level)
+
+    def intercept_interval(self, level: float = 0.95) -> tuple[float, float]:
+        """Student-t interval of the intercept (``(-inf, inf)`` when undetermined)."""
+        return t_interval(self.intercept, self.intercept_se, self.dof, level)
 
 
 def _prepare(x: np.ndarray, y: np.ndarray, weights: np.ndarray | None) -> tuple:
@@ -132,7 +144,9 @@ def fit_line(x: np.ndarray, y: np.ndarray, weights: np.ndarray | None = None) ->
     rss = float(w @ (y - intercept - slope * x) ** 2)
     dof = n - 2
     se = math.sqrt(rss / dof / sxx) if dof > 0 else math.inf
-    return LineFit(slope, intercept, se, r_squared(y, rss, weights=w), n, dof, x_mean, y_mean)
+    se_a = math.sqrt(rss / dof * (1.0 / sw + x_mean**2 / sxx)) if dof > 0 else math.inf
+    return LineFit(slope, intercept, se, r_squared(y, rss, weights=w), n, dof, x_mean, y_mean,
+                   se_a)
 
 
 def fit_through_origin(x: np.ndarray, y: np.ndarray, weights: np.ndarray | None = None) -> LineFit:
@@ -158,7 +172,7 @@ def fit_through_origin(x: np.ndarray, y: np.ndarray, weights: np.ndarray | None 
     dof = n - 1
     se = math.sqrt(rss / dof / sxx) if dof > 0 else math.inf
     return LineFit(slope, 0.0, se, r_squared(y, rss, weights=w, centred=False), n, dof,
-                   float(w @ x) / sw, float(w @ y) / sw)
+                   float(w @ x) / sw, float(w @ y) / sw, 0.0)
 
 
 def r_squared(y: np.ndarray, rss: float, *, weights: np.ndarray | None = None,
