@@ -1,4 +1,4 @@
-"""``stackdepth bleaching``: exit 0 within tolerance, 3 above it, 2 for bad input; outputs.
+"""``stackdepth bleaching``: exit 0 within tolerance, 4 inconclusive, 3 above it, 2 for bad input.
 
 Reference values: the demo's recorded truth (per-frame rate 1 - (1 - k)**N; first-order
 kinetics, from memory) and, for the corrected file, a re-check that finds it flat.
@@ -145,3 +145,38 @@ def test_console_script_exit_status_and_no_traceback(files):
                              str(files["series"])], capture_output=True, text=True, timeout=300)
     assert result.returncode == 3 and result.stdout.startswith("Signal fell")
     assert "Traceback" not in result.stderr
+
+
+# ------------------------------------------------------------------ exit status per verdict
+# The verdict comes from the 95 % interval of the loss (docs/bleaching.md): 0 within, 4
+# inconclusive, 3 exceeds. Series with a known first-order loss (first-order kinetics, from
+# memory), written to OME-TIFF and checked through viewer_plugin.cli.main.
+
+
+@pytest.mark.parametrize("lost, photons, status, words", [
+    (0.09, 15.0, 4, "inconclusive against the 10 % tolerance"),
+    (0.02, 300.0, 0, "within the 10 % tolerance (95 % interval of the loss:"),
+    (0.30, 300.0, 3, "exceeds the 10 % tolerance (95 % interval of the loss:"),
+])
+def test_exit_status_follows_the_verdict(tmp_path, capsys, lost, photons, status, words):
+    from tests.kernels.test_bleaching_coverage import loss_series
+
+    data = loss_series(1, lost=lost, n=8, photons=photons)
+    path = write_ome_tiff(tmp_path / "series.ome.tif", data, axes="TZYX", scale=(10.0, 1, 1, 1))
+    report = tmp_path / "r.json"
+    assert main(["bleaching", str(path), "--report", str(report)]) == status
+    assert words in capsys.readouterr().out
+    verdict = {0: "within", 3: "exceeds", 4: "inconclusive"}[status]
+    data = json.loads(report.read_text())
+    assert data["verdict"] == verdict and data["exceeds_tolerance"] == (status == 3)
+    assert "interval" in data["parameters"]["verdict_rule"]
+
+
+def test_help_documents_exit_status_4(capsys):
+    with pytest.raises(SystemExit):
+        main(["bleaching", "--help"])
+    text = " ".join(capsys.readouterr().out.split())
+    assert "4 inconclusive" in text and "3 above it" in text and "0 within tolerance" in text
+    with pytest.raises(SystemExit):
+        main(["--help"])
+    assert "4 inconclusive" in " ".join(capsys.readouterr().out.split())

@@ -55,3 +55,53 @@ def test_rate_and_loss_intervals_cover_the_truth():
         loss_hits += lo <= lost <= hi
     assert rate_hits >= MIN_COVERED, rate_hits
     assert loss_hits >= MIN_COVERED, loss_hits
+
+
+# ------------------------------------------------------------------ the three-way verdict
+# Rule (docs/bleaching.md): the 95 % interval of the loss against the tolerance; within when the
+# whole interval is at or below it, exceeds when the whole interval is above it, else
+# inconclusive. The true loss of each series is 1 - (1 - k)**(n - 1) (first-order kinetics).
+
+
+def loss_series(seed: int, *, lost: float, n: int = 12, photons: float) -> np.ndarray:
+    k = 1.0 - (1.0 - lost) ** (1.0 / (n - 1))
+    return random_series(np.random.default_rng(seed), k=k, n=n, photons=photons)
+
+
+@pytest.mark.parametrize("seed", range(5))
+def test_loss_just_below_the_tolerance_with_few_photons_is_inconclusive(seed):
+    """True loss 9 % against a 10 % tolerance, 8 frames with about 15 photons at a blob's peak:
+    the interval is several per cent wide and spans the tolerance (the point estimate alone
+    would have said "within" or "exceeds" by chance)."""
+    report = estimate_bleaching(loss_series(seed, lost=0.09, n=8, photons=15.0), tolerance=0.10)
+    low, high = report.fraction_lost_interval
+    assert low <= 0.10 < high
+    assert report.verdict == "inconclusive" and not report.exceeds_tolerance
+    assert "inconclusive against the 10 % tolerance" in report.summary
+    assert "95 % interval of the loss" in report.summary
+
+
+@pytest.mark.parametrize("seed", range(3))
+def test_clear_cases_stay_within_or_exceeds(seed):
+    """Many photons: a 2 % loss is within a 10 % tolerance, a 30 % loss exceeds it."""
+    within = estimate_bleaching(loss_series(seed, lost=0.02, photons=300.0), tolerance=0.10)
+    assert within.verdict == "within" and not within.exceeds_tolerance
+    assert within.fraction_lost_interval[1] <= 0.10
+    assert "within the 10 % tolerance (95 % interval of the loss:" in within.summary
+    above = estimate_bleaching(loss_series(seed, lost=0.30, photons=300.0), tolerance=0.10)
+    assert above.verdict == "exceeds" and above.exceeds_tolerance
+    assert above.fraction_lost_interval[0] > 0.10
+    assert "exceeds the 10 % tolerance (95 % interval of the loss:" in above.summary
+
+
+def test_model_choice_states_the_f_test_assumption():
+    """The F-test (extra sum of squares) assumes independent frames; the text says so, and says
+    when the two-component model was chosen."""
+    t = np.arange(40)
+    report = estimate_bleaching(100 + 1000.0 * (0.4 * 0.7**t + 0.6 * 0.98**t)[:, None, None, None]
+                                * np.pad(np.ones((1, 8, 8)), ((0, 0), (4, 4), (4, 4)))[None])
+    assert report.model == "double"
+    assert "independent" in report.model_choice and "two exponential components" in report.model_choice
+    assert "Two exponential components were fitted" in report.summary
+    single = estimate_bleaching(loss_series(0, lost=0.2, photons=300.0))
+    assert single.model == "single" and "independent" in single.model_choice

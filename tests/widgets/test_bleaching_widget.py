@@ -55,6 +55,15 @@ def test_check_on_the_demo_series_shows_verdict_and_plot(make_napari_viewer, qtb
     assert report.rate_per_frame == pytest.approx(series.truth["bleach_rate_per_frame"], rel=0.1)
     assert report.summary in widget.verdict.value
     assert "Demo truth" in widget.verdict.value
+    # this series loses about 5 % (truth 1 - (1 - 0.006)**9): the whole interval is below 10 %
+    # and above 2 %; the verdict is shown in words and in a colour of its own
+    assert report.verdict == "within"
+    assert widget.badge.visible and widget.badge.value == "Within tolerance"
+    assert "#0072B2" in widget.badge.native.styleSheet()
+    widget.tolerance.value = 2.0
+    _run(qtbot, widget, widget.check(start_thread=False))
+    assert widget.report.verdict == "exceeds" and widget.badge.value == "Exceeds tolerance"
+    assert "#D55E00" in widget.badge.native.styleSheet()
     axes = widget.figure.axes
     assert len(axes) == 1 and len(axes[0].lines) >= 3              # measured, model, tolerance
     np.testing.assert_array_equal(layer.data, before)
@@ -109,6 +118,9 @@ def test_two_pass_mode_shows_both_estimates_with_truth(make_napari_viewer, qtbot
     assert low <= forward.truth["bleach_rate_per_exposure"] <= high
     text = widget.verdict.value
     assert "per slice exposure" in text and "attenuation length" in text and "Demo truth" in text
+    assert "95 % interval of the loss" in text
+    assert widget.badge.value == {"within": "Within tolerance", "inconclusive": "Inconclusive",
+                                  "exceeds": "Exceeds tolerance"}[result.verdict]
     assert len(widget.figure.axes) == 2
 
 
@@ -164,3 +176,41 @@ def test_cancel_stops_the_check_without_a_result(make_napari_viewer, qtbot, monk
     _run(qtbot, widget, worker)
     assert widget.report is None
     assert any("cancelled" in text for text in infos)
+
+
+def test_verdict_colours_stay_apart_with_colour_vision_deficiency():
+    """Each verdict has words and a colour of its own. Simulated deuteranomaly, protanomaly and
+    tritanomaly at full severity (Machado, Oliveira & Fernandes 2009, via colorspacious) keep
+    every pair of badge colours at least 25 CAM02-UCS units apart (measured 30.8 or more), and
+    CIELAB lightness (skimage.color.rgb2lab) separates them too; the text colour on each has a
+    WCAG contrast ratio of at least 3.9 (relative luminance, WCAG 2 definition)."""
+    import itertools
+
+    from skimage.color import rgb2lab
+
+    from viewer_plugin.jobs.choices import VERDICT_COLOURS, VERDICT_WORDS, VERDICTS
+    from viewer_plugin.widgets.bleaching import verdict_badge_style
+
+    colorspacious = pytest.importorskip("colorspacious")
+
+    def rgb(hex_colour):
+        return np.array([int(hex_colour[i:i + 2], 16) for i in (1, 3, 5)]) / 255.0
+
+    def luminance(c):
+        linear = np.where(c <= 0.04045, c / 12.92, ((c + 0.055) / 1.055) ** 2.4)
+        return float(linear @ [0.2126, 0.7152, 0.0722])
+
+    assert set(VERDICT_COLOURS) == set(VERDICTS) == set(VERDICT_WORDS)
+    backgrounds = {v: rgb(VERDICT_COLOURS[v][0]) for v in VERDICTS}
+    lightness = sorted(float(rgb2lab(c[None, None])[0, 0, 0]) for c in backgrounds.values())
+    assert min(np.diff(lightness)) > 5
+    for cvd in ("deuteranomaly", "protanomaly", "tritanomaly"):
+        space = {"name": "sRGB1+CVD", "cvd_type": cvd, "severity": 100}
+        seen = {v: np.clip(colorspacious.cspace_convert(c, space, "sRGB1"), 0, 1)
+                for v, c in backgrounds.items()}
+        for a, b in itertools.combinations(VERDICTS, 2):
+            assert colorspacious.deltaE(seen[a], seen[b], input_space="sRGB1") >= 25, (cvd, a, b)
+    for verdict, (background, text) in VERDICT_COLOURS.items():
+        high, low = sorted((luminance(rgb(background)), luminance(rgb(text))), reverse=True)
+        assert (high + 0.05) / (low + 0.05) >= 3.9
+        assert background in verdict_badge_style(verdict)
