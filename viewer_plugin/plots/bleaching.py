@@ -130,11 +130,11 @@ def two_pass_figure(
     fig = _new_figure(figure, (9.0, 4.0))
     left, right = fig.add_subplot(1, 2, 1), fig.add_subplot(1, 2, 2)
     x, y = result.exposures, result.log_ratio
-    left.plot(x, y, "o", ms=4, color=MEASURED, label="ln(reverse / forward) per slice")
+    left.plot(x, y, "o", ms=4, color=MEASURED, label="slices")
     grid = np.array([0.0, float(x.max())])
     intercept = math.log(result.pass_ratio)
     left.plot(grid, intercept + math.log1p(-result.rate_per_exposure) * grid, "-", lw=2,
-              color=MODEL, label=f"fit: k = {result.rate_per_exposure * 100:.3g} % per exposure, "
+              color=MODEL, label=f"fit: k = {result.rate_per_exposure * 100:.3g} %, "
               f"pass ratio {result.pass_ratio:.3f}")
     truth = truth or {}
     k_true = truth.get("bleach_rate_per_exposure")
@@ -143,8 +143,10 @@ def two_pass_figure(
                   label=f"true k = {k_true * 100:.3g} % (demo)")
     left.set_xlabel("extra exposures of the reverse pass (2N − 1 − 2i)")
     left.set_ylabel("ln(reverse / forward)")
-    left.set_title(f"bleaching: the forward pass lost {result.fraction_lost * 100:.3g} %\n"
-                   f"{_loss_text(result)}", fontsize=9)
+    interval = result.fraction_lost_interval
+    ci = f" ({format_interval(interval)})" if all(math.isfinite(v) for v in interval) else ""
+    left.set_title(f"forward pass lost {result.fraction_lost * 100:.3g} %{ci}\n"
+                   f"verdict: {VERDICT_WORDS[result.verdict].lower()}", fontsize=9)
     left.grid(alpha=0.3)
     left.legend(fontsize=8, loc="lower left")
 
@@ -153,10 +155,10 @@ def two_pass_figure(
         used = np.isfinite(result.log_ratio) & (u > 0)
         left_out = ~np.isfinite(result.log_ratio) & (u > 0)
     right.semilogy(z[used], u[used], "o", ms=4, color=MEASURED,
-                   label="√(forward · reverse): equal exposures")
+                   label="√(forward · reverse)")
     if left_out.any():
         right.semilogy(z[left_out], u[left_out], "o", ms=4, mfc="none", color=LIMIT,
-                       label="left out (no clear foreground)")
+                       label="left out")
     line = _attenuation_line(result)
     if line is not None:
         length = f"{result.length_um:.3g} µm" if math.isfinite(result.length_um) else "none"
@@ -166,7 +168,7 @@ def two_pass_figure(
             right.semilogy(line[0], line[1][0] * np.exp(-(line[0] - line[0][0]) / l_true), ":",
                            lw=2, color=TRUTH, label=f"true ℓ = {l_true:.3g} µm (demo)")
     right.set_xlabel("depth (µm)")
-    right.set_ylabel("foreground signal, same exposures per slice")
+    right.set_ylabel("signal, equal exposures")
     right.set_title("attenuation with depth", fontsize=10)
     right.grid(alpha=0.3, which="both")
     right.legend(fontsize=8, loc="lower left")
