@@ -18,6 +18,10 @@ WIDGETS = (
 )
 
 
+#: Width of the docked tools in pixels: readable, and leaves the image most of a 1600-pixel screen.
+DOCK_WIDTH = 430
+
+
 def register(sub: Any) -> None:
     parser = sub.add_parser("view", help="open napari with the stackdepth widgets",
                             description="Open napari with the five stackdepth widgets docked and "
@@ -45,7 +49,7 @@ def run(args: argparse.Namespace) -> int:
     import napari
 
     viewer = napari.Viewer(title="stackdepth")
-    viewer.window.resize(1500, 950)
+    viewer.window.resize(1600, 1000)
     open_in_viewer(viewer, layers)
     if args.screenshot:
         from qtpy.QtCore import QTimer
@@ -71,11 +75,17 @@ def open_in_viewer(viewer: Any, layers: list[tuple[Any, dict[str, Any], str]]) -
         dock, widget = viewer.window.add_plugin_dock_widget("stackdepth", name)
         docks.append(dock)
         widgets.append(widget)
+    for dock, widget in zip(docks, widgets):
+        dock.setWindowTitle(widget.tab_title)  # short tab labels that read whole
     main_window = docks[0].parentWidget()
     if main_window is not None and hasattr(main_window, "tabifyDockWidget"):
+        from qtpy.QtCore import Qt
+
         for dock in docks[1:]:
             main_window.tabifyDockWidget(docks[0], dock)
         docks[0].raise_()
+        # the image keeps most of the window: the docks take a fixed, readable width
+        main_window.resizeDocks([docks[0]], [DOCK_WIDTH], Qt.Orientation.Horizontal)
     if layers and hasattr(widgets[0], "update_preview"):
         widgets[0].update_preview()  # depth at a glance: the downsampled depth colour preview
     return widgets
