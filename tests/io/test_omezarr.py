@@ -55,11 +55,13 @@ def test_round_trip_keeps_axes_scale_channels_and_metadata(tmp_path, czyx, versi
     zcyx = np.moveaxis(czyx, 0, 1)  # written in TIFF order; stored and read back in NGFF order
     path = write_ome_zarr(tmp_path / "a.ome.zarr", zcyx, axes="ZCYX", scale=(2.0, 1, 0.3, 0.3),
                           channel_names=["GFP", "tdTomato"], chunks=(4, 16, 16), version=version,
-                          metadata={"truth": {"length_um": 50.0, "seed": np.int64(3)}})
+                          metadata={"truth": {"length_um": 50.0, "seed": np.int64(3)}},
+                          translate=(-4.0, 0, 1.5, 2.5))
     stack = read_ome_zarr(path)
     assert type(stack.data).__module__.startswith("dask")
     assert stack.axes == "CZYX"
     assert stack.scale == pytest.approx((1.0, 2.0, 0.3, 0.3))
+    assert stack.translate == pytest.approx((0.0, -4.0, 1.5, 2.5))
     assert stack.units == ("", "µm", "µm", "µm")
     assert stack.channel_names == ["GFP", "tdTomato"]
     assert stack.metadata["truth"] == {"length_um": 50.0, "seed": 3}
@@ -133,6 +135,7 @@ def test_missing_unit_and_bad_scale_warn_and_fall_back(tmp_path, caplog):
     assert stack.scale == pytest.approx((2.0, 0.5, 1.0))  # z kept (taken as µm), x falls back to 1
     assert "axis 'z' has no unit" in caplog.text
     assert "-0.5" in caplog.text and "axis 'x'" in caplog.text
+    assert stack.metadata["unusable_voxel_size"] == {"X": -0.5}  # a job then refuses x steps of 1
 
 
 def test_multiscales_wide_transform_and_translation_are_applied(tmp_path):
@@ -147,7 +150,7 @@ def test_multiscales_wide_transform_and_translation_are_applied(tmp_path):
     _edit_multiscales(path, edit)
     stack = read_ome_zarr(path)
     assert stack.scale == pytest.approx((2.0, 0.5, 0.5))
-    assert stack.metadata["ome_zarr"]["translation"] == pytest.approx((5.0, 0.0, 0.0))
+    assert stack.translate == pytest.approx((5.0, 0.0, 0.0))
 
 
 # --------------------------------------------------------------------------- pyramid
@@ -168,7 +171,7 @@ def test_pyramid_shapes_scales_and_values(tmp_path, version):
     for k, stack in enumerate(levels):
         assert stack.scale == pytest.approx((0.5 * 2**k,) * 3)
         # pixel centres: a 2^k block's centre is (2^k - 1) / 2 level-0 steps from the first pixel's
-        assert stack.metadata["ome_zarr"]["translation"] == pytest.approx(((2**k - 1) / 2 * 0.5,) * 3)
+        assert stack.translate == pytest.approx(((2**k - 1) / 2 * 0.5,) * 3)
     expected = np.rint(downscale_local_mean(data.astype(np.float64), (2, 2, 2))).astype(np.uint16)
     np.testing.assert_array_equal(levels[1].data.compute(), expected)
 
@@ -435,7 +438,8 @@ def test_napari_reader_opens_lazy_multiscale_layers_without_reading_level_0(tmp_
     from viewer_plugin.io.reader import napari_get_reader
 
     path = write_ome_zarr(tmp_path / "m.ome.zarr", czyx, axes="CZYX", scale=(1, 2.0, 0.3, 0.3),
-                          channel_names=["GFP", "RFP"], chunks=(4, 16, 16))
+                          channel_names=["GFP", "RFP"], chunks=(4, 16, 16),
+                          translate=(0, 10.0, 0, 1.5))
     reads = []
     original = _zarrstore.ChunkReader.__getitem__
 
@@ -454,7 +458,7 @@ def test_napari_reader_opens_lazy_multiscale_layers_without_reading_level_0(tmp_
         assert all(type(level).__module__.startswith("dask") for level in data)
         assert kwargs["scale"] == pytest.approx((2.0, 0.3, 0.3))
         assert kwargs["axis_labels"] == ("z", "y", "x") and kwargs["units"] == ("µm",) * 3
-        assert kwargs["translate"] == pytest.approx((0.0, 0.0, 0.0))
+        assert kwargs["translate"] == pytest.approx((10.0, 0.0, 1.5))
         level1 = read_ome_zarr(path, level=1).data[c].compute()
         assert kwargs["contrast_limits"] == (float(level1.min()), float(level1.max()))
     napari = pytest.importorskip("napari")

@@ -75,9 +75,11 @@ def read_ome_zarr(path: str | os.PathLike[str], *, level: int = 0) -> Stack:
         ``data`` is a dask array in the file's dtype (nothing is read yet);
         ``axes`` a subset of "TCZYX"; ``scale`` in µm (and s for T);
         ``channel_names`` from the omero channel labels (else "channel i");
-        ``metadata`` stackdepth's stored key/value data plus ``"ome_zarr"``:
-        NGFF version, ``level``, ``levels``, ``chunks``, ``shapes`` of all
-        levels, ``translation`` (µm, s) and the file's ``units``.
+        ``translate`` the NGFF translation in µm (and s); ``metadata``
+        stackdepth's stored key/value data plus ``"ome_zarr"``: NGFF version,
+        ``level``, ``levels``, ``chunks``, ``shapes`` of all levels and the
+        file's ``units`` (and ``"unusable_voxel_size"`` when a scale is not
+        positive, as the TIFF reader reports it).
 
     Raises
     ------
@@ -153,13 +155,15 @@ def _open(path: Path) -> _Image:
     raw = _raw_transforms(node, spec, len(axes), path)
     factors = _unit_factors(axes_meta, axes, path)
     shapes = [tuple(a.shape) for a in arrays]
-    scales = _steps([s for s, _ in raw], factors, shapes, axes_meta, path)
+    scales, unusable = _steps([s for s, _ in raw], factors, shapes, axes_meta, path)
     translations = [tuple(float(t) * f if math.isfinite(t) else 0.0 for t, f in zip(tr, factors))
                     for _, tr in raw]
     ours = attrs.get(ATTRIBUTE) if isinstance(attrs.get(ATTRIBUTE), dict) else {}
+    metadata = dict(ours.get("metadata") or {})
+    if unusable:  # as the TIFF reader: a job refuses a step of 1 that only stands in for a bad value
+        metadata["unusable_voxel_size"] = {axes[i]: value for i, value in unusable.items()}
     image = _Image(path, spec.zarr.version, axes, units, list(spec.datasets), arrays, scales,
-                   translations, metadata=dict(ours.get("metadata") or {}),
-                   strict=bool(ours.get("every_chunk_written")))
+                   translations, metadata=metadata, strict=bool(ours.get("every_chunk_written")))
     image.channel_names = _channel_names(node.metadata.get("channel_names"), axes, shapes[0], path)
     return image
 
@@ -292,9 +296,11 @@ def _unit_factors(axes: list[dict[str, Any]], letters: str, path: Path) -> list[
 
 
 def _steps(raw: list[tuple[float, ...]], factors: list[float], shapes: list[tuple[int, ...]],
-           axes: list[dict[str, Any]], path: Path) -> list[tuple[float, ...]]:
-    """Steps per level in µm/s; a non-positive step falls back to 1 at full resolution."""
+           axes: list[dict[str, Any]], path: Path) -> tuple[list[tuple[float, ...]], dict[int, Any]]:
+    """Steps per level in µm/s (a non-positive step falls back to 1 at full resolution), and
+    the unusable full-resolution values by axis index."""
     steps = [[s * f for s, f in zip(level, factors)] for level in raw]
+    unusable: dict[int, Any] = {}
     for i, axis in enumerate(axes):
         for k, level in enumerate(steps):
             if math.isfinite(level[i]) and level[i] > 0:
@@ -302,8 +308,10 @@ def _steps(raw: list[tuple[float, ...]], factors: list[float], shapes: list[tupl
             fallback = 1.0 if k == 0 else steps[0][i] * shapes[0][i] / max(1, shapes[k][i])
             logger.warning("%s: the scale %r of axis %r in dataset %d is not a positive number; "
                            "using %g", path, raw[k][i], axis.get("name"), k, fallback)
+            if k == 0 and axis.get("type") != "channel":
+                unusable[i] = raw[k][i]
             level[i] = fallback
-    return [tuple(float(s) for s in level) for level in steps]
+    return [tuple(float(s) for s in level) for level in steps], unusable
 
 
 def _channel_names(names: Any, axes: str, shape: tuple[int, ...], path: Path) -> list[str]:
@@ -327,7 +335,6 @@ def _level(image: _Image, k: int) -> Stack:
                          meta=np.empty((0,) * reader.ndim, reader.dtype), fancy=False)
     info = {"version": image.version, "level": k, "levels": len(image.arrays),
             "dataset": image.datasets[k], "chunks": reader.grid,
-            "shapes": [tuple(int(n) for n in a.shape) for a in image.arrays],
-            "translation": image.translations[k], "units": image.units}
+            "shapes": [tuple(int(n) for n in a.shape) for a in image.arrays], "units": image.units}
     return Stack(data, image.axes, image.scales[k], list(image.channel_names),
-                 {**image.metadata, "ome_zarr": info}, image.path)
+                 {**image.metadata, "ome_zarr": info}, image.path, translate=image.translations[k])

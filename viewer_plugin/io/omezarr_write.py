@@ -58,6 +58,7 @@ def write_ome_zarr(
     version: str = "0.4",
     levels: int | None = None,
     progress: Progress = None,
+    translate: tuple[float, ...] | None = None,
 ) -> Path:
     """Write an image as a chunked multiscale OME-Zarr folder, streaming and atomically.
 
@@ -97,6 +98,9 @@ def write_ome_zarr(
         ``progress(done, total)`` in chunks, after each batch; may raise
         :class:`~viewer_plugin._shared.progress.Cancelled`, which stops the
         write and leaves no target.
+    translate : tuple of float, optional
+        Position of the first voxel per axis, in the units of *scale* (default
+        zero); stored as the NGFF translation of the full-resolution level.
 
     Returns
     -------
@@ -104,7 +108,8 @@ def write_ome_zarr(
         The written folder. Level *k* is the dataset ``"k"``; its dtype is the
         input's. Coarser levels are block means (rounded to nearest for
         integers); their NGFF scale is the level-0 step times the cumulative
-        factor, their translation (factor - 1) / 2 level-0 steps (pixel centres).
+        factor, their translation *translate* plus (factor - 1) / 2 level-0
+        steps (pixel centres).
 
     Raises
     ------
@@ -133,7 +138,7 @@ def write_ome_zarr(
     [(2, 8, 600, 500), (2, 8, 300, 250), (2, 8, 150, 125)]
     """
     path = Path(path)
-    plan = _plan(data, axes, scale, channel_names, chunks, version, levels)
+    plan = _plan(data, axes, scale, channel_names, chunks, version, levels, translate)
     if (path.exists() or path.is_symlink()) and not overwrite:
         raise FileExistsError(f"{path} exists; choose another name or allow overwriting")
     if not path.parent.is_dir():
@@ -176,10 +181,11 @@ class _Plan:
     shapes: list[tuple[int, ...]]
     factors: list[tuple[int, ...]]
     version: str
+    translate: tuple[float, ...]
 
 
 def _plan(data: Any, axes: str, scale: Any, channel_names: Any, chunks: Any, version: Any,
-          levels: Any) -> _Plan:
+          levels: Any, translate: Any) -> _Plan:
     data, _ = check_stack(data, name="data", min_ndim=2)
     axes = str(axes).upper() if isinstance(axes, str) else axes
     if (not isinstance(axes, str) or len(axes) != data.ndim or len(set(axes)) != len(axes)
@@ -189,6 +195,10 @@ def _plan(data: Any, axes: str, scale: Any, channel_names: Any, chunks: Any, ver
     if not hasattr(scale, "__len__") or len(scale) != data.ndim:
         fail("scale", f"{data.ndim} steps, one per axis", scale)
     steps = [check_number(s, name=f"scale[{i}]", low=0, low_open=True) for i, s in enumerate(scale)]
+    translate = (0.0,) * data.ndim if translate is None else translate
+    if not hasattr(translate, "__len__") or len(translate) != data.ndim:
+        fail("translate", f"{data.ndim} positions, one per axis", translate)
+    shift = [check_number(t, name=f"translate[{i}]") for i, t in enumerate(translate)]
     version = check_choice(version, name="version", choices=("0.4", "0.5"))
     names = _names(channel_names, axes, data.shape)
     order = sorted(range(data.ndim), key=lambda i: _ORDER.index(axes[i]))
@@ -196,11 +206,12 @@ def _plan(data: Any, axes: str, scale: Any, channel_names: Any, chunks: Any, ver
         data = data.transpose(order)
     axes = "".join(axes[i] for i in order)
     steps = tuple(steps[i] for i in order)
+    shift = tuple(shift[i] for i in order)
     chunks = _chunks(chunks, axes, tuple(data.shape), data.dtype, order)
     if levels is not None:
         levels = check_int(levels, name="levels", low=1)
     shapes, factors = _pyramid(tuple(data.shape), axes, steps, chunks, levels)
-    return _Plan(data, axes, steps, names, chunks, shapes, factors, version)
+    return _Plan(data, axes, steps, names, chunks, shapes, factors, version, shift)
 
 
 def _names(channel_names: Any, axes: str, shape: tuple[int, ...]) -> list[str]:
@@ -409,7 +420,7 @@ def _datasets(plan: _Plan) -> list[dict[str, Any]]:
     for k, factors in enumerate(plan.factors):
         total = total * np.asarray(factors)
         scale = [float(s * t) for s, t in zip(plan.scale, total)]
-        shift = [float((t - 1) / 2 * s) for s, t in zip(plan.scale, total)]
+        shift = [float(o + (t - 1) / 2 * s) for s, t, o in zip(plan.scale, total, plan.translate)]
         out.append({"path": str(k), "coordinateTransformations": [
             {"type": "scale", "scale": scale}, {"type": "translation", "translation": shift}]})
     return out
@@ -499,11 +510,11 @@ def convert_to_ome_zarr(
     stack = read_stack(src, lazy=True)  # metadata; its page-per-chunk pixels are not used
     with _tiff_pixels(src) as pixels:
         stack = _samples_as_channels(Stack(pixels, stack.axes, stack.scale, stack.channel_names,
-                                           stack.metadata, src))
+                                           stack.metadata, src, translate=stack.translate))
         return write_ome_zarr(dst, stack.data, axes=stack.axes, scale=stack.scale,
                               channel_names=stack.channel_names or None, metadata=stack.metadata,
                               chunks=chunks, overwrite=overwrite, version=version,
-                              progress=progress)
+                              progress=progress, translate=stack.translate)
 
 
 @contextlib.contextmanager
@@ -537,4 +548,4 @@ def _samples_as_channels(stack: Stack) -> Stack:
     n = stack.data.shape[stack.axes.index("S")]
     names = ["red", "green", "blue", "alpha"][:n] if n in (3, 4) else [f"channel {i}" for i in range(n)]
     return Stack(stack.data, stack.axes.replace("S", "C"), stack.scale, names, stack.metadata,
-                 stack.path)
+                 stack.path, translate=stack.translate)

@@ -59,7 +59,8 @@ def stack_to_layers(stack: Stack, *, name: str | None = None,
                     levels: list[Any] | None = None) -> list[LayerData]:
     """Split a :class:`Stack` into image layers, one per channel.
 
-    Layers carry ``scale`` in um (and s), ``axis_labels``, ``units`` and, in
+    Layers carry ``scale`` in um (and s), ``translate`` (when not zero), ``axis_labels``,
+    ``units`` and, in
     ``metadata``, the source path, the axes and our stored key/value metadata
     (e.g. ``truth`` for demo files).
 
@@ -71,8 +72,7 @@ def stack_to_layers(stack: Stack, *, name: str | None = None,
         Layer name stem (default: the file name without extensions).
     levels : list of arrays, optional
         Resolution levels of the same axes, full resolution first: the layers
-        become multiscale, with contrast limits from the coarsest level and a
-        ``translate`` from ``stack.metadata["ome_zarr"]["translation"]``.
+        become multiscale, with contrast limits from the coarsest level.
     """
     base = name or (stack.path.name.split(".")[0] if stack.path else "image")
     rgb = stack.axes.endswith("S")
@@ -87,9 +87,8 @@ def stack_to_layers(stack: Stack, *, name: str | None = None,
         "units": units,
         "rgb": rgb,
     }
-    shift = (stack.metadata.get("ome_zarr") or {}).get("translation")
-    if shift is not None:
-        common["translate"] = tuple(float(shift[i]) for i in keep)
+    if stack.translate is not None and any(stack.translate):
+        common["translate"] = tuple(float(stack.translate[i]) for i in keep)
     meta = {k: v for k, v in stack.metadata.items() if k != "ome_zarr"}
     meta.update({"source_path": str(stack.path) if stack.path else None, "axes": axes})
     pyramid = list(levels) if levels is not None else [stack.data]
