@@ -6,7 +6,7 @@ import argparse
 from pathlib import Path
 from typing import Any
 
-from ._common import CommandError
+from ._common import CommandError, check_input
 
 #: Display names of the widgets, as in napari.yaml, in dock order.
 WIDGETS = (
@@ -25,8 +25,9 @@ DOCK_WIDTH = 430
 def register(sub: Any) -> None:
     parser = sub.add_parser("view", help="open napari with the stackdepth widgets",
                             description="Open napari with the five stackdepth widgets docked and "
-                            "a file (OME-TIFF or TIFF) or the synthetic demo loaded.")
-    parser.add_argument("path", nargs="?", help="OME-TIFF or TIFF stack to open")
+                            "a file (OME-TIFF or TIFF), an OME-Zarr folder (opened lazily) or the synthetic demo "
+                            "loaded.")
+    parser.add_argument("path", nargs="?", help="OME-TIFF or TIFF stack, or OME-Zarr folder, to open")
     parser.add_argument("--demo", action="store_true", help="load the synthetic fibre-slab demo")
     parser.add_argument("--screenshot", metavar="PNG",
                         help="save a screenshot of the window once it is shown, then quit")
@@ -34,12 +35,12 @@ def register(sub: Any) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from ..io.reader import stack_to_layers
-    from ..io.ometiff import read_stack
+    from ..io.reader import read_layers
 
     layers = []
     if args.path:
-        layers.extend(stack_to_layers(read_stack(args.path)))  # fails fast: exit 2 before the GUI
+        check_input(args.path)  # a missing file or a folder that is no image: exit 2 before the GUI
+        layers.extend(read_layers(args.path))  # OME-Zarr opens lazily, as a multiscale layer
     if args.demo:
         from ..samples import sample_fibre_slab
 
