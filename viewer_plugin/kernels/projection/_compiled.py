@@ -33,6 +33,7 @@ __all__ = [
     "peak_update",
     "weighted_update",
     "tinted_update",
+    "peak_merge",
     "occlusion_update_lut",
     "occlusion_update_float",
     "occlusion_rgb_update_lut",
@@ -230,6 +231,30 @@ def peak_update(block, z0, vals, idx):
 
 #: Planes summed in float32 before the partial sums go into float64 state.
 _GROUP = 16
+
+
+@njit(**_OPTS)
+def peak_merge(vals, idx, later_vals, later_idx, out_vals, out_idx):
+    """The combine of two (maximum, index) states; *later* covers the deeper slices.
+
+    2-D arrays of equal shape; the outputs may be the first inputs (in
+    place). The later index wins only where it saw a value (index >= 0) that
+    is strictly larger, or where the earlier saw none: ties keep the
+    earlier, smaller index. The maximum itself is then ``_top`` of both (a
+    state that saw nothing holds NaN or the dtype's minimum).
+    """
+    nr, nc = vals.shape
+    for r in prange(nr):
+        v = vals[r]
+        ix = idx[r]
+        w = later_vals[r]
+        jx = later_idx[r]
+        ov = out_vals[r]
+        ox = out_idx[r]
+        for c in range(nc):
+            take = (jx[c] >= 0) & ((w[c] > v[c]) | (ix[c] < 0))
+            ox[c] = _replace(ix[c], take, jx[c])
+            ov[c] = _top(v[c], w[c])
 
 
 @njit(**_OPTS)

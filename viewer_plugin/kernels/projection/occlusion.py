@@ -8,6 +8,7 @@ rendering for looking, not a measurement.
 
 from __future__ import annotations
 
+from functools import partial
 from typing import Any, Optional
 
 import numpy as np
@@ -15,10 +16,10 @@ import numpy as np
 from ..._shared.progress import Progress
 from ..._shared.validation import check_choice, check_number
 from . import _compiled as nb
-from ._common import KERNEL_LOCK, depth_view
+from ._common import depth_view
 from .colour import depth_colours, resolve_lut
 from .limits import resolve_clim
-from .reduction import fold_chunks, kernel_dtype
+from .reduction import DepthFold, kernel_dtype, over, reduce_depth
 
 __all__ = ["DEFAULT_OPTICAL_DEPTH", "VIEWS", "default_density", "occlusion_projection"]
 
@@ -52,36 +53,46 @@ def _occlusion_tables(kdtype: np.dtype, lo: float, hi: float, kappa: float) -> t
     return -np.expm1(-kappa * u) * u, np.exp(-kappa * u)
 
 
-def _occlusion_fold(v: Any, lo: float, hi: float, kappa: float, reverse: bool,
-                colours: Optional[np.ndarray], progress: Progress) -> np.ndarray:
-    """Composited colour over all chunks: float64 grey, or planar float32 RGB if *colours*.
+def _start_occlusion(shape: tuple, rgb: bool) -> tuple[np.ndarray, np.ndarray]:
+    """Fresh (colour, transmittance): nothing composited, everything let through.
 
-    The RGB accumulators are float32 (each step adds at most 1 to a sum that
-    stays in [0, 1]: rounding stays near 1e-7 per slice) to keep the extra
-    memory of the colour variant within a quarter of a 16-bit stack.
+    The RGB colour is planar float32, (..., 3, rows, cols): each step adds
+    at most 1 to a sum that stays in [0, 1], so rounding stays near 1e-7 per
+    slice, and the extra memory of the colour variant stays within a quarter
+    of a 16-bit stack.
     """
-    others = v.shape[1:]
-    kdtype = kernel_dtype(v.dtype)
-    rgb_shape = others[:-2] + (3,) + others[-2:]
-    colour = (np.zeros(others, np.float64) if colours is None
-              else np.zeros(rgb_shape, np.float32))
-    trans = np.ones(others, np.float64)
-    tables = _occlusion_tables(kdtype, lo, hi, kappa) if kdtype.kind == "u" else None
+    colour = (np.zeros(shape[:-2] + (3,) + shape[-2:], np.float32) if rgb
+              else np.zeros(shape, np.float64))
+    return colour, np.ones(shape, np.float64)
+
+
+def _update_occlusion(block: np.ndarray, z0: int, state: tuple, *, lo: float, hi: float,
+                      kappa: float, reverse: bool, tables: Optional[tuple],
+                      colours: Optional[np.ndarray]) -> None:
+    """Composite *block* into (colour, transmittance): tables for 8/16-bit input, exp for floats."""
+    c, t = state
     scale = 1.0 / (hi - lo)
+    if colours is None and tables is not None:
+        nb.occlusion_update_lut(block, *tables, reverse, c, t)
+    elif colours is None:
+        nb.occlusion_update_float(block, lo, scale, kappa, reverse, c, t)
+    elif tables is not None:
+        nb.occlusion_rgb_update_lut(block, z0, *tables, reverse, colours, c, t)
+    else:
+        nb.occlusion_rgb_update_float(block, z0, lo, scale, kappa, reverse, colours, c, t)
 
-    def fold(block: np.ndarray, z0: int, index: tuple) -> None:
-        c, t = colour[index], trans[index]
-        if colours is None and tables is not None:
-            nb.occlusion_update_lut(block, *tables, reverse, c, t)
-        elif colours is None:
-            nb.occlusion_update_float(block, lo, scale, kappa, reverse, c, t)
-        elif tables is not None:
-            nb.occlusion_rgb_update_lut(block, z0, *tables, reverse, colours, c, t)
-        else:
-            nb.occlusion_rgb_update_float(block, z0, lo, scale, kappa, reverse, colours, c, t)
 
-    with KERNEL_LOCK:
-        fold_chunks(v, fold, reverse=reverse, progress=progress)
+def _occlusion_fold(v: Any, lo: float, hi: float, kappa: float, reverse: bool,
+                    colours: Optional[np.ndarray], progress: Progress) -> np.ndarray:
+    """Composited colour over the whole stack: float64 grey, or planar float32 RGB if *colours*."""
+    kdtype = kernel_dtype(v.dtype)
+    tables = _occlusion_tables(kdtype, lo, hi, kappa) if kdtype.kind == "u" else None
+    fold = DepthFold(
+        start=partial(_start_occlusion, rgb=colours is not None),
+        update=partial(_update_occlusion, lo=lo, hi=hi, kappa=kappa, reverse=reverse,
+                       tables=tables, colours=colours),
+        combine=over, dtype=kdtype, reverse=reverse)
+    colour, _ = reduce_depth(v, fold, progress)
     return colour
 
 
@@ -110,6 +121,7 @@ def occlusion_projection(
     stack : array_like or dask array
         Stack with at least 3 dimensions; integer, boolean or floating point.
         NaN counts as no signal. Not modified.
+        A dask array is computed as one graph on the active dask scheduler.
     z_step : float, optional
         Slice thickness in µm (> 0).
     density : float, optional
@@ -132,7 +144,8 @@ def occlusion_projection(
     axis : int, optional
         The depth axis (default 0); other axes are kept.
     progress : callable, optional
-        ``progress(done, total)`` between z-chunks; may raise Cancelled.
+        ``progress(done, total)`` as z-chunks (numpy) or groups of blocks
+        (dask) are folded; may raise Cancelled, which stops the computation.
 
     Returns
     -------
