@@ -93,5 +93,6 @@ def warm_up() -> None:
         combine_peak(partial, partial)  # the combine of dask partials
         for method in METHODS:
             depth_coded_projection(tiny, method=method, clim=(0, 1))
-        occlusion_projection(tiny, clim=(0, 1))
-        occlusion_projection(tiny, clim=(0, 1), cmap="viridis")
+        for density in (0.1, 1.0):  # optically thin slices (the default on most stacks), thick
+            occlusion_projection(tiny, clim=(0, 1), density=density)
+            occlusion_projection(tiny, clim=(0, 1), density=density, cmap="viridis")

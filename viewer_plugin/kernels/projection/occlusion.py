@@ -46,13 +46,6 @@ def default_density(n_slices: int, z_step: float) -> float:
     return DEFAULT_OPTICAL_DEPTH / (int(n_slices) * float(z_step))
 
 
-def _occlusion_tables(kdtype: np.dtype, lo: float, hi: float, kappa: float) -> tuple:
-    """Per-integer-value ``a * u`` and ``1 - a`` for uint8/uint16 input (float64)."""
-    x = np.arange(2 ** (8 * kdtype.itemsize), dtype=np.float64)
-    u = np.clip((x - lo) / (hi - lo), 0.0, 1.0)
-    return -np.expm1(-kappa * u) * u, np.exp(-kappa * u)
-
-
 def _start_occlusion(shape: tuple, rgb: bool) -> tuple[np.ndarray, np.ndarray]:
     """Fresh (colour, transmittance): nothing composited, everything let through.
 
@@ -67,31 +60,25 @@ def _start_occlusion(shape: tuple, rgb: bool) -> tuple[np.ndarray, np.ndarray]:
 
 
 def _update_occlusion(block: np.ndarray, z0: int, state: tuple, *, lo: float, hi: float,
-                      kappa: float, reverse: bool, tables: Optional[tuple],
-                      colours: Optional[np.ndarray]) -> None:
-    """Composite *block* into (colour, transmittance): tables for 8/16-bit input, exp for floats."""
+                      kappa: float, reverse: bool, colours: Optional[np.ndarray]) -> None:
+    """Composite *block* into (colour, transmittance), grey or RGB."""
     c, t = state
     scale = 1.0 / (hi - lo)
-    if colours is None and tables is not None:
-        nb.occlusion_update_lut(block, *tables, reverse, c, t)
-    elif colours is None:
-        nb.occlusion_update_float(block, lo, scale, kappa, reverse, c, t)
-    elif tables is not None:
-        nb.occlusion_rgb_update_lut(block, z0, *tables, reverse, colours, c, t)
+    thin = kappa <= nb.SERIES_DEPTH
+    if colours is None:
+        nb.occlusion_update(block, lo, scale, kappa, thin, reverse, c, t)
     else:
-        nb.occlusion_rgb_update_float(block, z0, lo, scale, kappa, reverse, colours, c, t)
+        nb.occlusion_rgb_update(block, z0, lo, scale, kappa, thin, reverse, colours, c, t)
 
 
 def _occlusion_fold(v: Any, lo: float, hi: float, kappa: float, reverse: bool,
                     colours: Optional[np.ndarray], progress: Progress) -> np.ndarray:
     """Composited colour over the whole stack: float64 grey, or planar float32 RGB if *colours*."""
-    kdtype = kernel_dtype(v.dtype)
-    tables = _occlusion_tables(kdtype, lo, hi, kappa) if kdtype.kind == "u" else None
     fold = DepthFold(
         start=partial(_start_occlusion, rgb=colours is not None),
         update=partial(_update_occlusion, lo=lo, hi=hi, kappa=kappa, reverse=reverse,
-                       tables=tables, colours=colours),
-        combine=over, dtype=kdtype, reverse=reverse)
+                       colours=colours),
+        combine=over, dtype=kernel_dtype(v.dtype), reverse=reverse)
     colour, _ = reduce_depth(v, fold, progress)
     return colour
 
@@ -164,8 +151,10 @@ def occlusion_projection(
     -----
     The result is a rendering, not a measurement: the "absorption" is a
     display device derived from the signal itself, not the sample's real
-    attenuation. 8- and 16-bit input goes through a table of (a * u, 1 - a)
-    per input value.
+    attenuation. The opacity of each voxel is computed in single precision
+    (about 1e-7 relative) and the transmittance and grey colour are carried
+    in double precision, so the result matches the exact compositing to
+    float32 rounding.
 
     References
     ----------
