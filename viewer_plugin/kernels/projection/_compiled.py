@@ -550,13 +550,14 @@ def _composite_state(t_row, a4, e4, c):
 
 @njit(fastmath=_CONTRACT, **_OPTS)
 def occlusion_update(block, lo, scale, kappa, thin, reverse, colour, trans):
-    """Front-to-back compositing of *block* into float64 (colour, transmittance).
+    """Front-to-back compositing of *block* into (float32 colour, float64 transmittance).
 
     Each voxel has opacity ``a = 1 - exp(-kappa * u)`` and emits ``a * u``,
     ``u = clip((x - lo) * scale, 0, 1)``; *thin* when ``kappa <=
     SERIES_DEPTH`` (cheaper, see :func:`_absorbance`). Four slices at a time
     are composited in float32 (:func:`_over4`, vectorised), then added to
-    the float64 state: ``C += T * E``, ``T -= T * A``. *reverse* composites
+    the state: ``C += T * E`` (one float32 rounding per four slices) and
+    ``T -= T * A`` in float64. *reverse* composites
     from the last slice of the block to the first. Threads take bands of
     ``_BAND`` rows, as :func:`peak_update`.
     """
@@ -577,7 +578,7 @@ def occlusion_update(block, lo, scale, kappa, thin, reverse, colour, trans):
                 tr = trans[r]
                 for c in range(nc):
                     tr[c], de = _composite_state(tr, a4, e4, c)
-                    col[c] += de
+                    col[c] = np.float32(np.float64(col[c]) + de)
             k += step
 
 
