@@ -406,7 +406,7 @@ _LN2_LO = np.float32(-2.12194440e-4)
 _LOG2E = np.float32(1.4426950408889634)
 
 
-#: Optical depth of one slice below which 1 - exp(-w) is taken from its series directly.
+#: Optical depth of one slice up to which 1 - exp(-w) is taken from its series directly.
 SERIES_DEPTH = 0.34657359  # ln(2) / 2
 
 
@@ -422,13 +422,15 @@ def _expm1_series(r):
 def _absorbance(w, thin):
     """``1 - exp(-w)`` in float32 for w >= 0, to about one ulp, without a branch per voxel.
 
-    *thin* (``w <= SERIES_DEPTH`` for every voxel) uses the series alone;
-    otherwise ``-w = n ln2 + r`` with ``|r| <= ln2 / 2`` and ``1 - exp(-w)
-    = (1 - 2**n) - 2**n expm1(r)``, without cancellation for small w; w is
-    clamped at 87 (exp(-87) ~ 1.6e-38: opaque).
+    *thin* (``w <= SERIES_DEPTH`` for every voxel): the series alone, written
+    for ``-expm1(-w)`` directly. Otherwise ``-w = n ln2 + r`` with ``|r| <=
+    ln2 / 2`` and ``1 - exp(-w) = (1 - 2**n) - 2**n expm1(r)``, without
+    cancellation for small w; w is clamped at 87 (exp(-87) ~ 1.6e-38: opaque).
     """
     if thin:
-        return -_expm1_series(-w)
+        return w * (np.float32(1.0) - w * (np.float32(1 / 2) - w * (np.float32(1 / 6) - w * (
+            np.float32(1 / 24) - w * (np.float32(1 / 120) - w * (
+                np.float32(1 / 720) - w * np.float32(1 / 5040)))))))
     y = -_min_ordered(w, np.float32(87.0))
     n = np.floor(y * _LOG2E + np.float32(0.5))
     r = (y - n * _LN2_HI) - n * _LN2_LO
@@ -436,32 +438,49 @@ def _absorbance(w, thin):
     return (np.float32(1.0) - s) - s * _expm1_series(r)
 
 
-def _unit_of(x, lo, scale):
-    """:func:`_unit` in float32, from a float64 difference for floating-point *x*."""
+@njit(inline="always")
+def _norm(lo, scale, kappa, thin):
+    """What the compositing loops need of the normalisation and the slice's optical depth.
+
+    ``(lo, kappa * scale)`` in float64 for floating-point input;
+    ``(kappa * scale, kappa * scale * lo)`` in float32 for 8/16-bit input;
+    kappa in float32, negative to mark *thin*.
+    """
+    ks = kappa * scale
+    k32 = np.float32(kappa)
+    return (np.float64(lo), np.float64(ks), np.float32(ks), np.float32(ks * lo),
+            -k32 if thin else k32)
 
 
-@overload(_unit_of)
-def _unit_of_impl(x, lo, scale):
-    if isinstance(x, types.Integer):  # 8/16-bit values are exact in float32
-        return lambda x, lo, scale: _unit(x, np.float32(lo), np.float32(scale))
+def _depth_of(x, norm):
+    """Optical depth ``w = kappa * clip((x - lo) * scale, 0, 1)`` of a voxel, float32; NaN -> 0."""
 
-    def from_float64(x, lo, scale):  # offset data keeps its precision; NaN -> 0
-        u = (np.float64(x) - lo) * scale
-        u = u if u > 0.0 else 0.0
-        return np.float32(u if u < 1.0 else 1.0)
+
+@overload(_depth_of)
+def _depth_of_impl(x, norm):
+    if isinstance(x, types.Integer):  # 8/16-bit values are exact in float32: one multiply-add
+        def from_int(x, norm):
+            w = np.float32(x) * norm[2] - norm[3]
+            return _min_ordered(_max_ordered(w, np.float32(0.0)), abs(norm[4]))
+        return from_int
+
+    def from_float64(x, norm):  # offset data keeps its precision
+        w = (np.float64(x) - norm[0]) * norm[1]
+        w = w if w > 0.0 else 0.0
+        return np.float32(min(w, np.float64(abs(norm[4]))))
     return from_float64
 
 
 @njit(inline="always", fastmath=_CONTRACT)
-def _absorb(x, lo, scale, kappa):
-    """(opacity ``a = 1 - exp(-kappa * u)``, emission ``a * u``) of a voxel, float32.
+def _absorb(x, norm):
+    """(opacity ``a = 1 - exp(-w)``, ``a * w``) of a voxel, float32.
 
-    A negative *kappa* stands for ``-kappa <= SERIES_DEPTH`` (:func:`_absorbance`).
+    The emission is ``a * u = a * w / kappa``: the loops divide by kappa once
+    per step, not per voxel.
     """
-    u = _unit_of(x, lo, scale)
-    thin = kappa < np.float32(0.0)
-    a = _absorbance(abs(kappa) * u, thin)
-    return a, a * u
+    w = _depth_of(x, norm)
+    a = _absorbance(w, norm[4] < np.float32(0.0))
+    return a, a * w
 
 
 @njit(inline="always", fastmath=_CONTRACT)
@@ -495,13 +514,13 @@ def _four_steps(block, k, r, reverse):
 
 
 @njit(inline="always", fastmath=_CONTRACT)
-def _absorb4(ra, rb, rc, rd, c, norm):
-    """Opacities and emissions of column *c* of four rows (:func:`_absorb`); norm = (lo, scale, kappa)."""
-    lo, scale, kappa = norm
-    aa, ea = _absorb(ra[c], lo, scale, kappa)
-    ab, eb = _absorb(rb[c], lo, scale, kappa)
-    ac, ec = _absorb(rc[c], lo, scale, kappa)
-    ad, ed = _absorb(rd[c], lo, scale, kappa)
+def _absorb4(rows4, c, norm):
+    """Opacities and emissions (:func:`_absorb`) of column *c* of four rows."""
+    ra, rb, rc, rd = rows4
+    aa, ea = _absorb(ra[c], norm)
+    ab, eb = _absorb(rb[c], norm)
+    ac, ec = _absorb(rc[c], norm)
+    ad, ed = _absorb(rd[c], norm)
     return aa, ab, ac, ad, ea, eb, ec, ed
 
 
@@ -512,57 +531,59 @@ def _grey4(rows4, norm, a4, e4):
     Pure float32, apart from the float64 state, so that it vectorises at full
     width; one loop per case of *thin* (the test would leave the vector loop).
     """
-    ra, rb, rc, rd = rows4
-    if norm[2] < np.float32(0.0):
+    if norm[4] < np.float32(0.0):
         for c in range(a4.shape[0]):
-            aa, ab, ac, ad, ea, eb, ec, ed = _absorb4(ra, rb, rc, rd, c, norm)
+            aa, ab, ac, ad, ea, eb, ec, ed = _absorb4(rows4, c, norm)
             a4[c], e4[c] = _over4(aa, ab, ac, ad, ea, eb, ec, ed)
         return
     for c in range(a4.shape[0]):
-        aa, ab, ac, ad, ea, eb, ec, ed = _absorb4(ra, rb, rc, rd, c, norm)
+        aa, ab, ac, ad, ea, eb, ec, ed = _absorb4(rows4, c, norm)
         a4[c], e4[c] = _over4(aa, ab, ac, ad, ea, eb, ec, ed)
 
 
 @njit(inline="always", fastmath=_CONTRACT)
 def _rgb4(rows4, norm, q, a4, e3):
     """As :func:`_grey4`, each slice's emission times its colour (q: 4 x 3 float32), into e3 (3, cols)."""
-    ra, rb, rc, rd = rows4
+    if norm[4] < np.float32(0.0):
+        for c in range(a4.shape[0]):
+            _rgb_column(_absorb4(rows4, c, norm), q, a4, e3, c)
+        return
     for c in range(a4.shape[0]):
-        aa, ab, ac, ad, ea, eb, ec, ed = _absorb4(ra, rb, rc, rd, c, norm)
-        a4[c], e3[0, c] = _over4(aa, ab, ac, ad, ea * q[0], eb * q[3], ec * q[6], ed * q[9])
-        e3[1, c] = _over4(aa, ab, ac, ad, ea * q[1], eb * q[4], ec * q[7], ed * q[10])[1]
-        e3[2, c] = _over4(aa, ab, ac, ad, ea * q[2], eb * q[5], ec * q[8], ed * q[11])[1]
+        _rgb_column(_absorb4(rows4, c, norm), q, a4, e3, c)
 
 
-@njit(inline="always")
-def _norm(lo, scale, kappa, thin):
-    """(lo, scale, kappa) as the compositing loops take them; a negative kappa marks *thin*."""
-    k32 = np.float32(kappa)
-    return np.float64(lo), np.float64(scale), -k32 if thin else k32
+@njit(inline="always", fastmath=_CONTRACT)
+def _rgb_column(ae, q, a4, e3, c):
+    """Column *c* of :func:`_rgb4` from the opacities and emissions *ae* of its four voxels."""
+    aa, ab, ac, ad, ea, eb, ec, ed = ae
+    a4[c], e3[0, c] = _over4(aa, ab, ac, ad, ea * q[0], eb * q[3], ec * q[6], ed * q[9])
+    e3[1, c] = _over4(aa, ab, ac, ad, ea * q[1], eb * q[4], ec * q[7], ed * q[10])[1]
+    e3[2, c] = _over4(aa, ab, ac, ad, ea * q[2], eb * q[5], ec * q[8], ed * q[11])[1]
 
 
-@njit(inline="always")
-def _composite_state(t_row, a4, e4, c):
-    """T and the float64 increment of colour after a composited step: (T - T A, T E)."""
-    t = t_row[c]
-    return t - t * np.float64(a4[c]), t * np.float64(e4[c])
+@njit(inline="always", fastmath=_CONTRACT)
+def _one_step(row, norm, a4, e4):
+    """Opacity and emission of one row of a slice (the last slices of a block), into a4, e4."""
+    for c in range(a4.shape[0]):
+        a4[c], e4[c] = _absorb(row[c], norm)
 
 
 @njit(fastmath=_CONTRACT, **_OPTS)
 def occlusion_update(block, lo, scale, kappa, thin, reverse, colour, trans):
     """Front-to-back compositing of *block* into (float32 colour, float64 transmittance).
 
-    Each voxel has opacity ``a = 1 - exp(-kappa * u)`` and emits ``a * u``,
-    ``u = clip((x - lo) * scale, 0, 1)``; *thin* when ``kappa <=
-    SERIES_DEPTH`` (cheaper, see :func:`_absorbance`). Four slices at a time
-    are composited in float32 (:func:`_over4`, vectorised), then added to
-    the state: ``C += T * E`` (one float32 rounding per four slices) and
-    ``T -= T * A`` in float64. *reverse* composites
-    from the last slice of the block to the first. Threads take bands of
-    ``_BAND`` rows, as :func:`peak_update`.
+    Each voxel has optical depth ``w = kappa * u``, ``u = clip((x - lo) *
+    scale, 0, 1)``, opacity ``a = 1 - exp(-w)`` (:func:`_absorbance`; *thin*
+    when ``kappa <= SERIES_DEPTH``) and emits ``a * u``. Four slices at a
+    time are composited in float32 (:func:`_over4`, vectorised), then added
+    to the state: ``C += T * E`` (one float32 rounding per four slices) and
+    ``T -= T * A`` in float64. *reverse* composites from the last slice of
+    the block to the first. Threads take bands of ``_BAND`` rows, as
+    :func:`peak_update`.
     """
     nz, nr, nc = block.shape
     norm = _norm(lo, scale, kappa, thin)
+    per_kappa = 1.0 / kappa if kappa > 0.0 else 0.0
     for b in prange(_n_bands(nr)):
         a4 = np.empty(nc, np.float32)
         e4 = np.empty(nc, np.float32)
@@ -577,17 +598,10 @@ def occlusion_update(block, lo, scale, kappa, thin, reverse, colour, trans):
                 col = colour[r]
                 tr = trans[r]
                 for c in range(nc):
-                    tr[c], de = _composite_state(tr, a4, e4, c)
-                    col[c] = np.float32(np.float64(col[c]) + de)
+                    t = tr[c]
+                    col[c] = np.float32(np.float64(col[c]) + t * np.float64(e4[c]) * per_kappa)
+                    tr[c] = t - t * np.float64(a4[c])
             k += step
-
-
-@njit(inline="always", fastmath=_CONTRACT)
-def _one_step(row, norm, a4, e4):
-    """Opacity and emission of one row of a slice (the last slices of a block), into a4, e4."""
-    lo, scale, kappa = norm
-    for c in range(a4.shape[0]):
-        a4[c], e4[c] = _absorb(row[c], lo, scale, kappa)
 
 
 @njit(inline="always")
@@ -599,23 +613,12 @@ def _step_colours(colours, z0, nz, k, reverse):
             + _rgb32(colours, z0 + _step_slice(nz, k + 3, reverse)))
 
 
-@njit(inline="always", fastmath=_CONTRACT)
-def _rgb1(row, norm, q, a4, e3):
-    """Opacity and coloured emission of one row of a slice of colour q[:3], into a4, e3."""
-    lo, scale, kappa = norm
-    for c in range(a4.shape[0]):
-        a, e = _absorb(row[c], lo, scale, kappa)
-        a4[c] = a
-        e3[0, c] = e * q[0]
-        e3[1, c] = e * q[1]
-        e3[2, c] = e * q[2]
-
-
 @njit(fastmath=_CONTRACT, **_OPTS)
 def occlusion_rgb_update(block, z0, lo, scale, kappa, thin, reverse, colours, colour, trans):
     """As :func:`occlusion_update`, slice z emitting ``a * u * colours[z0 + z]``.
 
     ``colour`` is planar float32 (3, rows, cols); the transmittance float64.
+    *colours* are the slice colours divided by kappa (0 where kappa is 0).
     """
     nz, nr, nc = block.shape
     norm = _norm(lo, scale, kappa, thin)
@@ -627,24 +630,29 @@ def occlusion_rgb_update(block, z0, lo, scale, kappa, thin, reverse, colours, co
             step = 4 if k + 4 <= nz else 1
             if step == 4:
                 q = _step_colours(colours, z0, nz, k, reverse)
-            else:
+            else:  # one slice: its colour four times, the first used
                 q3 = _rgb32(colours, z0 + _step_slice(nz, k, reverse))
                 q = q3 + q3 + q3 + q3
             for r in _band(b, nr):
                 if step == 4:
                     _rgb4(_four_steps(block, k, r, reverse), norm, q, a4, e3)
                 else:
-                    _rgb1(block[_step_slice(nz, k, reverse), r], norm, q, a4, e3)
+                    _one_step(block[_step_slice(nz, k, reverse), r], norm, a4, e3[1])
+                    for c in range(nc):
+                        e3[0, c] = e3[1, c] * q[0]
+                        e3[2, c] = e3[1, c] * q[2]
+                        e3[1, c] *= q[1]
                 k0 = colour[0, r]
                 k1 = colour[1, r]
                 k2 = colour[2, r]
                 tr = trans[r]
                 for c in range(nc):
-                    t32 = np.float32(tr[c])
+                    t = tr[c]
+                    t32 = np.float32(t)
                     k0[c] += t32 * e3[0, c]
                     k1[c] += t32 * e3[1, c]
                     k2[c] += t32 * e3[2, c]
-                    tr[c] = _composite_state(tr, a4, e3[0], c)[0]
+                    tr[c] = t - t * np.float64(a4[c])
             k += step
 
 

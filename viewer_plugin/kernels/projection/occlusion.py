@@ -74,6 +74,8 @@ def _update_occlusion(block: np.ndarray, z0: int, state: tuple, *, lo: float, hi
 def _occlusion_fold(v: Any, lo: float, hi: float, kappa: float, reverse: bool,
                     colours: Optional[np.ndarray], progress: Progress) -> np.ndarray:
     """Composited colour over the whole stack: float32 grey, or planar float32 RGB if *colours*."""
+    if colours is not None:  # the kernels emit a * kappa * u: the colour carries 1 / kappa
+        colours = colours / kappa if kappa > 0 else np.zeros_like(colours)
     fold = DepthFold(
         start=partial(_start_occlusion, rgb=colours is not None),
         update=partial(_update_occlusion, lo=lo, hi=hi, kappa=kappa, reverse=reverse,
