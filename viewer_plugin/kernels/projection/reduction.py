@@ -40,7 +40,6 @@ __all__ = [
     "DepthFold",
     "kernel_dtype",
     "reduce_depth",
-    "fold_chunks",
     "fold_blocks",
     "combine_peak",
     "combine_weighted",
@@ -50,7 +49,8 @@ __all__ = [
 
 #: z-chunk size (input bytes) for numpy inputs the kernels read in place.
 CHUNK_BYTES = 64 * 2**20
-#: z-chunk size (converted bytes) when chunks must be copied (dtype or layout).
+#: z-chunk size (converted bytes) when chunks must be copied (dtype or layout);
+#: also the least a fold task of the dask graph reads (small blocks are grouped).
 COPY_CHUNK_BYTES = 8 * 2**20
 
 _NATIVE = (np.dtype(np.uint8), np.dtype(np.uint16), np.dtype(np.float32), np.dtype(np.float64))
@@ -118,22 +118,25 @@ class DepthFold:
 def reduce_depth(v: Any, fold: DepthFold, progress: Progress = None) -> tuple:
     """The final state of *fold* over the depth-first stack *v* (numpy or dask).
 
-    numpy input is folded in place chunk by chunk; dask input runs as one
-    graph on the active scheduler (see :mod:`.graph`). *progress* is called
-    as chunks (numpy) or groups of blocks (dask) finish and may raise
-    Cancelled, which stops the computation.
+    numpy input is folded in place, z-chunk after z-chunk (deepest first when
+    ``fold.reverse``), into one state of the whole image; dask input runs as
+    one graph on the active scheduler (see :mod:`.graph`). *progress* is
+    called as chunks (numpy) or groups of blocks (dask) are folded and may
+    raise Cancelled, which stops the computation.
     """
     if is_dask(v):
         from .graph import reduce_dask
 
         return reduce_dask(v, fold, progress)
     state = fold.start(v.shape[1:])
-
-    def step(block: np.ndarray, z0: int, index: tuple) -> None:
-        fold.update(block, z0, tuple(s[index] for s in state))
-
+    bounds = _chunk_bounds(v)
+    if fold.reverse:
+        bounds = bounds[::-1]
+    report_progress(progress, 0, len(bounds))
     with KERNEL_LOCK:
-        fold_chunks(v, step, reverse=fold.reverse, progress=progress)
+        for done, (start, stop) in enumerate(bounds, 1):
+            _fold_into(fold, state, v[start:stop], start)
+            report_progress(progress, done, len(bounds))
     return state
 
 
@@ -147,14 +150,16 @@ def fold_blocks(fold: DepthFold, z0s: tuple, *blocks: np.ndarray) -> tuple:
     """
     state = fold.start(blocks[0].shape[1:])
     order = range(len(blocks) - 1, -1, -1) if fold.reverse else range(len(blocks))
-    leading = list(np.ndindex(*blocks[0].shape[1:-2]))
     with KERNEL_LOCK:
         for k in order:
-            chunk = np.asarray(blocks[k])
-            for index in leading:
-                fold.update(_as_block(chunk, index, fold.dtype), z0s[k],
-                            tuple(s[index] for s in state))
+            _fold_into(fold, state, np.asarray(blocks[k]), z0s[k])
     return state
+
+
+def _fold_into(fold: DepthFold, state: tuple, chunk: np.ndarray, z0: int) -> None:
+    """Fold the depth-first numpy *chunk* (first plane: global slice *z0*) into *state*."""
+    for index in np.ndindex(*chunk.shape[1:-2]):
+        fold.update(_as_block(chunk, index, fold.dtype), z0, tuple(s[index] for s in state))
 
 
 def _as_block(chunk: np.ndarray, index: tuple, kdtype: np.dtype) -> np.ndarray:
@@ -167,12 +172,10 @@ def _as_block(chunk: np.ndarray, index: tuple, kdtype: np.dtype) -> np.ndarray:
     return block
 
 
-def _chunk_bounds(v: Any) -> list[tuple[int, int]]:
-    """(start, stop) of the z-chunks to fold, in increasing depth."""
+def _chunk_bounds(v: np.ndarray) -> list[tuple[int, int]]:
+    """(start, stop) of the z-chunks of a numpy stack to fold, in increasing depth."""
     n = int(v.shape[0])
     plane = int(np.prod(v.shape[1:], dtype=np.int64))
-    if is_dask(v):
-        return _dask_bounds(tuple(v.chunks[0]), plane * v.dtype.itemsize)
     in_place = np.dtype(v.dtype) in _NATIVE and _blocks_contiguous(v)
     if in_place:
         target, itemsize = CHUNK_BYTES, v.dtype.itemsize
@@ -181,67 +184,10 @@ def _chunk_bounds(v: Any) -> list[tuple[int, int]]:
     return [(s.start, s.stop) for s in depth_chunks(n, plane * itemsize, target_bytes=target)]
 
 
-def _dask_bounds(chunks: tuple, plane_bytes: int) -> list[tuple[int, int]]:
-    """Whole dask z-chunks, neighbours grouped up to COPY_CHUNK_BYTES each.
-
-    A dask chunk is never split (that would read it several times); small
-    ones (e.g. one plane each) are computed together to save overhead.
-    """
-    bounds: list[tuple[int, int]] = []
-    start = stop = 0
-    for size in chunks:
-        if stop > start and (stop - start + size) * plane_bytes > COPY_CHUNK_BYTES:
-            bounds.append((start, stop))
-            start = stop
-        stop += int(size)
-    if stop > start:
-        bounds.append((start, stop))
-    return bounds
-
-
 def _blocks_contiguous(v: np.ndarray) -> bool:
     """True when every (planes, rows, cols) block of *v* is C-contiguous."""
     probe = v[(slice(None),) + (0,) * (v.ndim - 3)]
     return bool(probe.flags.c_contiguous)
-
-
-def fold_chunks(
-    v: Any,
-    fold: Callable[[np.ndarray, int, tuple], None],
-    *,
-    reverse: bool = False,
-    progress: Any = None,
-) -> None:
-    """Call ``fold(block, z0, index)`` for every z-chunk and leading index.
-
-    Parameters
-    ----------
-    v : ndarray or dask array
-        Depth-first stack, shape (n, ..., rows, cols).
-    fold : callable
-        Receives a C-contiguous (planes, rows, cols) block in the kernel
-        dtype, the global depth index of its first plane and the index of
-        the leading (non-image) axes it belongs to.
-    reverse : bool
-        Visit chunks from the deepest to the first (for bottom views).
-    progress : callable, optional
-        ``progress(done, total)`` between chunks; may raise Cancelled.
-    """
-    bounds = _chunk_bounds(v)
-    if reverse:
-        bounds = bounds[::-1]
-    kdtype = kernel_dtype(v.dtype)
-    leading = list(np.ndindex(*v.shape[1:-2]))
-    total = len(bounds)
-    report_progress(progress, 0, total)
-    for done, (start, stop) in enumerate(bounds, 1):
-        chunk = v[start:stop]
-        if is_dask(chunk):
-            chunk = np.asarray(chunk.compute())
-        for index in leading:
-            fold(_as_block(chunk, index, kdtype), start, index)
-        del chunk
-        report_progress(progress, done, total)
 
 
 # --- combine: merge the partial results of two adjacent depth ranges ---------
