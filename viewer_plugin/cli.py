@@ -18,7 +18,7 @@ from . import __version__
 from .commands._common import EXIT_FAILURE, EXIT_USAGE, CommandError, compute_scheduler
 
 #: Sub-command modules in :mod:`viewer_plugin.commands`, in help order.
-SUBCOMMANDS = ("view", "demo", "project", "attenuation", "bleaching", "convert")
+SUBCOMMANDS = ("view", "demo", "project", "figures", "attenuation", "bleaching", "convert")
 
 
 class _Parser(argparse.ArgumentParser):

@@ -41,7 +41,7 @@ __all__ = [
 ]
 
 #: File extensions accepted for figures and the matplotlib format used for each.
-FIGURE_FORMATS = {".png": "png", ".tif": "tiff", ".tiff": "tiff", ".pdf": "pdf"}
+FIGURE_FORMATS = {".png": "png", ".tif": "tiff", ".tiff": "tiff", ".pdf": "pdf", ".svg": "svg"}
 
 #: What each projection method shows, in the words of a methods section.
 METHOD_WORDS = {
