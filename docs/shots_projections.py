@@ -3,8 +3,8 @@
     xvfb-run -a python docs/shots_projections.py
 
 Writes docs/images/projection_depth_colour.png (the depth colour widget and its RGB result),
-projection_brightest_point.png (maximum and depth map in µm with napari's colour bar),
-projection_blended.png (depth-coloured blended top view, the two side views below it) and
+projection_peak_depth.png (maximum and depth map in µm with napari's colour bar),
+projection_occlusion.png (depth-coloured occlusion top view, the two side views below it) and
 projection_figure.png (the figure "Export figure…" saves for a paper). Open them and look at
 them before committing.
 """
@@ -47,8 +47,8 @@ def main() -> int:
     from viewer_plugin.kernels.projection import warm_up
     from viewer_plugin.samples import demo_layer
     from viewer_plugin.widgets.projection import (
-        BlendedWidget,
-        BrightestPointWidget,
+        OcclusionWidget,
+        PeakDepthWidget,
         DepthColourWidget,
     )
 
@@ -71,25 +71,25 @@ def main() -> int:
     viewer.screenshot(str(IMAGES / "projection_depth_colour.png"), canvas_only=False)
     colour.live.value = False  # the next shots change the source's contrast: no preview then
 
-    brightest = BrightestPointWidget(viewer)
+    peak = PeakDepthWidget(viewer)
     source.contrast_limits = (150.0, source.contrast_limits[1])  # above the demo's background
-    brightest.hide_background.value = True
-    dock(viewer, brightest, "Brightest-point projection")
-    wait(app, brightest.compute(start_thread=False), brightest)
+    peak.hide_background.value = True
+    dock(viewer, peak, "Peak depth map")
+    wait(app, peak.compute(start_thread=False), peak)
     only_visible(viewer, f"{name} depth of max (\u00b5m)")
     settle(app)
-    viewer.screenshot(str(IMAGES / "projection_brightest_point.png"), canvas_only=False)
+    viewer.screenshot(str(IMAGES / "projection_peak_depth.png"), canvas_only=False)
 
-    blended = BlendedWidget(viewer)
-    blended.side_views.value = True
-    blended.colour.value = "viridis"  # each slice emits its depth's colour, side views too
-    dock(viewer, blended, "Blended projection")
-    wait(app, blended.compute(start_thread=False), blended)
-    only_visible(viewer, f"{name} blended (top)", f"{name} blended side (along y)",
-                 f"{name} blended side (along x)")
+    occlusion = OcclusionWidget(viewer)
+    occlusion.side_views.value = True
+    occlusion.colour.value = "viridis"  # each slice emits its depth's colour, side views too
+    dock(viewer, occlusion, "Occlusion projection")
+    wait(app, occlusion.compute(start_thread=False), occlusion)
+    only_visible(viewer, f"{name} occlusion (top)", f"{name} occlusion side (along y)",
+                 f"{name} occlusion side (along x)")
     viewer.reset_view()
     settle(app)
-    viewer.screenshot(str(IMAGES / "projection_blended.png"), canvas_only=False)
+    viewer.screenshot(str(IMAGES / "projection_occlusion.png"), canvas_only=False)
     viewer.close()
 
     # the figure "Export figure..." saves, from the same result and parameters

@@ -99,3 +99,66 @@ def test_kernel_subpackages_import_only_primitives(folder):
             if level == 2 and module == "":
                 offenders.append(f"{path.name}: from .. import")
     assert offenders == []
+
+
+#: Which parts of the package each part may import (the package root, for the version, always).
+#: Layers import downwards only: foundation <- kernels <- io/plots/figures <- jobs <- docks and
+#: commands <- cli; nothing but cli imports commands; kernels and io import no front-end.
+ALLOWED = {
+    "_shared": {"_shared"},
+    "kernels": {"_shared", "kernels"},
+    "io": {"_shared", "io"},
+    "demo": {"_shared", "demo"},
+    "plots": {"_shared", "kernels", "plots"},
+    "figures": {"_shared", "kernels", "figures"},
+    "samples": {"_shared", "demo", "samples"},
+    "jobs": {"_shared", "kernels", "io", "plots", "figures", "jobs"},
+    "widgets": {"_shared", "kernels", "io", "plots", "figures", "jobs", "widgets"},
+    "commands": {"_shared", "io", "plots", "figures", "jobs", "demo", "samples", "commands"},
+    "cli": {"_shared", "commands", "cli"},
+}
+
+
+def _area(module: str) -> str:
+    """The part of the package a dotted module name belongs to ("" for the package root)."""
+    parts = module.split(".")
+    return parts[1] if len(parts) > 1 else ""
+
+
+def _imported_modules(path: Path) -> list[str]:
+    """Every module of viewer_plugin that *path* imports, at any depth (inside functions too)."""
+    package = ".".join(path.relative_to(PACKAGE.parent).with_suffix("").parts)
+    if path.name == "__init__.py":
+        package = package.rsplit(".", 1)[0] + ".__init__"
+    found = []
+    for node in ast.walk(ast.parse(path.read_text(encoding="utf-8"))):
+        if isinstance(node, ast.Import):
+            found += [alias.name for alias in node.names]
+        elif isinstance(node, ast.ImportFrom):
+            if node.level == 0:
+                found.append(node.module or "")
+            else:
+                base = package.split(".")[: -node.level]
+                found.append(".".join(base + ([node.module] if node.module else [])))
+    return [name for name in found if name == "viewer_plugin" or name.startswith("viewer_plugin.")]
+
+
+def test_import_edges_point_downwards():
+    """Each module imports only the parts its layer may use (imports inside functions included)."""
+    offenders = []
+    for path in PACKAGE.rglob("*.py"):
+        area = _area(".".join(path.relative_to(PACKAGE.parent).with_suffix("").parts))
+        if area in ("", "__init__", "__main__"):
+            continue
+        for module in _imported_modules(path):
+            target = _area(module)
+            if target not in ("", "__init__") and target not in ALLOWED[area]:
+                offenders.append(f"{path.relative_to(PACKAGE)} imports {module}")
+    assert offenders == []
+
+
+def test_import_check_sees_imports_inside_functions():
+    """The edge check reads imports inside function bodies (a lazy import is still an edge)."""
+    modules = _imported_modules(PACKAGE / "commands" / "project.py")
+    assert any(name.startswith("viewer_plugin.jobs") for name in modules)
+    assert _area("viewer_plugin.widgets._dock") == "widgets"

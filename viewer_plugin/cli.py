@@ -17,10 +17,10 @@ import sys
 from typing import Sequence
 
 from . import __version__
-from .commands._common import EXIT_FAILURE, EXIT_USAGE, CommandError
+from .commands._common import EXIT_FAILURE, EXIT_USAGE, CommandError, compute_scheduler
 
 #: Sub-command modules in :mod:`viewer_plugin.commands`, in help order.
-SUBCOMMANDS = ("view", "demo", "project", "attenuation", "bleaching")
+SUBCOMMANDS = ("view", "demo", "project", "figures", "attenuation", "bleaching", "convert")
 
 
 class _Parser(argparse.ArgumentParser):
@@ -65,7 +65,8 @@ def main(argv: Sequence[str] | None = None) -> int:
         if not getattr(args, "func", None):
             parser.print_help(sys.stderr)
             return EXIT_USAGE
-        status = int(args.func(args) or 0)
+        with compute_scheduler(args):
+            status = int(args.func(args) or 0)
         held.show()  # a command that finished shows what the readers warned about
         return status
     except CommandError as exc:

@@ -41,16 +41,19 @@ __all__ = [
 ]
 
 #: File extensions accepted for figures and the matplotlib format used for each.
-FIGURE_FORMATS = {".png": "png", ".tif": "tiff", ".tiff": "tiff", ".pdf": "pdf"}
+FIGURE_FORMATS = {".png": "png", ".tif": "tiff", ".tiff": "tiff", ".pdf": "pdf", ".svg": "svg"}
 
-#: What each depth-coding method shows, in the words of a methods section.
+#: What each projection method shows, in the words of a methods section.
 METHOD_WORDS = {
     "peak": "each pixel shows the depth of its strongest voxel along the optical axis, "
-                 "with brightness from that voxel's intensity",
+            "with brightness from that voxel's intensity",
     "weighted": "each pixel shows the intensity-weighted mean depth of the voxels along the "
                 "optical axis, with brightness from the maximum intensity",
     "tinted": "every slice was tinted with the colour of its depth and the tinted slices were "
               "combined by maximum-intensity projection",
+    "occlusion": "the stack was rendered with an emission-absorption model (nearer structures "
+                 "partly hide deeper ones); this is a rendering, not a measurement",
+    "max": "each pixel shows the maximum intensity along the optical axis",
 }
 
 CAVEAT = ("Brightness is relative (display contrast), not a calibrated intensity; colours give "

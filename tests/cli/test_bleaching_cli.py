@@ -147,6 +147,33 @@ def test_console_script_exit_status_and_no_traceback(files):
     assert "Traceback" not in result.stderr
 
 
+@pytest.mark.parametrize("rescale", ["model", "measured"])
+def test_rescale_choices_flatten_the_series(files, tmp_path, capsys, rescale):
+    """--rescale model|measured: the corrected file re-checks flat (first-order kinetics)."""
+    corrected = tmp_path / f"{rescale}.ome.tif"
+    assert main(["bleaching", str(files["series"]), "-o", str(corrected), "--rescale", rescale]) == 3
+    written = read_stack(corrected)
+    assert written.metadata["bleaching_correction"]["rescale"] == rescale
+    assert main(["bleaching", str(corrected), "--tolerance", "0.05"]) == 0
+    capsys.readouterr()
+
+
+def test_equalise_writes_a_histogram_matched_copy(files, tmp_path, capsys):
+    """--equalise OUT: every time point's histogram matched to time point 0
+    (reference library: skimage.exposure.match_histograms)."""
+    from skimage.exposure import match_histograms
+
+    out = tmp_path / "eq.ome.tif"
+    assert main(["bleaching", str(files["series"]), "--equalise", str(out)]) == 3
+    assert "not for intensities" in capsys.readouterr().out
+    source, written = read_stack(files["series"]).data, read_stack(out).data
+    assert written.dtype == np.float32 and written.shape == source.shape
+    np.testing.assert_allclose(written[5], match_histograms(source[5], source[0]), rtol=1e-5,
+                               atol=1e-3)
+    assert main(["bleaching", str(files["series"]), "--equalise", str(tmp_path / "eq.tif")]) == 2
+    one_line_error(capsys, "--equalise", ".ome.tif")
+
+
 # ------------------------------------------------------------------ exit status per verdict
 # The verdict comes from the 95 % interval of the loss (docs/bleaching.md): 0 within, 4
 # inconclusive, 3 exceeds. Series with a known first-order loss (first-order kinetics, from

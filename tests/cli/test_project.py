@@ -183,3 +183,19 @@ def test_uncalibrated_file_warns_about_z_step(tmp_path):
     assert "--z-step" in result.stderr and "Traceback" not in result.stderr
     calibrated = run_cli("project", path, "-o", tmp_path / "c.ome.tif", "--z-step", "0.5")
     assert calibrated.returncode == 0 and "--z-step" not in calibrated.stderr
+
+
+@pytest.mark.parametrize("method", ["peak", "weighted", "tinted", "occlusion", "max"])
+def test_every_method_writes_its_projection(stack_file, tmp_path, method):
+    """Every --method value works; max equals numpy's max (numpy documentation)."""
+    path, data = stack_file
+    out = tmp_path / f"{method}.ome.tif"
+    assert main(["project", str(path), "-o", str(out), "--method", method]) == 0
+    written = read_stack(out)
+    assert written.metadata["projection"]["method"] == method
+    if method == "max":
+        np.testing.assert_array_equal(written.data, data.max(axis=0))
+    elif method == "occlusion":
+        assert written.axes == "YX" and written.data.dtype == np.float32
+    else:
+        assert written.axes == "YXS" and written.data.dtype == np.uint8

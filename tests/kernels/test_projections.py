@@ -333,6 +333,21 @@ def test_occlusion_rgb_variant(dtype):
     assert out.shape == (6, 7, 3) and out.dtype == np.float32
 
 
+@pytest.mark.parametrize("dtype", [np.uint16, np.float32])
+@pytest.mark.parametrize("view", ["top", "bottom"])
+@pytest.mark.parametrize("cmap", [None, "viridis"])
+def test_occlusion_optically_thick_slices(dtype, view, cmap):
+    """Levoy 1988 compositing, slices of optical depth up to 1.6 (not the short series)."""
+    stack = random_stack(dtype, shape=(15, 8, 9), seed=71)
+    lo, hi, density, z_step = 50.0, 800.0, 2.0, 0.8
+    out = P.occlusion_projection(stack, z_step=z_step, density=density, clim=(lo, hi), view=view,
+                                 cmap=cmap)
+    colours = None if cmap is None else matplotlib.colormaps[cmap](np.arange(15) / 14)[:, :3]
+    ref = reference_composite(stack, lo, hi, density * z_step, reverse=view == "bottom",
+                              colours=colours)
+    np.testing.assert_allclose(out, ref, rtol=1e-5, atol=1e-6)
+
+
 def test_occlusion_default_density():
     stack = np.full((20, 2, 2), 1.0)
     out = P.occlusion_projection(stack, z_step=0.5, clim=(0, 1))
@@ -446,7 +461,7 @@ def partials_of(stack, n_parts, kind):
             out.append((vals, idx, tint))
         else:
             colour, trans = np.zeros(shape), np.ones(shape)
-            nb.occlusion_update_float(block, 0.2, 1 / 0.6, 0.7, False, colour, trans)
+            nb.occlusion_update(block, 0.2, 1 / 0.6, 0.7, False, False, colour, trans)
             out.append((colour, trans))
     return out
 

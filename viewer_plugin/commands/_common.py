@@ -7,10 +7,12 @@ and the file system, nothing about the analysis.
 
 from __future__ import annotations
 
+import contextlib
+import logging
 import os
 import sys
 from pathlib import Path
-from typing import Any, Iterable
+from typing import Any, Iterable, Iterator
 
 from .._shared.atomic import atomic_write
 
@@ -20,8 +22,9 @@ EXIT_FAILURE = 1
 EXIT_USAGE = 2
 EXIT_OVER_TOLERANCE = 3
 
-#: Suffixes of the image files the commands write.
+#: Suffixes of the image files and folders the commands write.
 OME_TIFF = (".ome.tif", ".ome.tiff")
+OME_ZARR = ".ome.zarr"
 
 
 class CommandError(Exception):
@@ -42,7 +45,7 @@ def check_outputs(args: Any, options: tuple[str, ...] = ("output", "report", "pl
                   images: Iterable[str] = ("output",)) -> dict[str, Path | None]:
     """Check every output option of *args* before any work: no silent overwrite, distinct files.
 
-    The options named in *images* must name OME-TIFF files. Returns option
+    The options named in *images* must name OME-TIFF files or OME-Zarr folders. Returns option
     name -> path (or None when not given).
     """
     out: dict[str, Path | None] = {}
@@ -56,28 +59,59 @@ def check_outputs(args: Any, options: tuple[str, ...] = ("output", "report", "pl
         raise CommandError(f"{names}: expected different files, got the same path twice")
     for option in images:
         target = out.get(option)
-        if target is not None and not target.name.lower().endswith(OME_TIFF):
-            raise CommandError(f"--{option}: expected a .ome.tif file name, got {target.name}")
+        if target is not None and not target.name.lower().endswith(OME_TIFF + (OME_ZARR,)):
+            raise CommandError(f"--{option}: expected a .ome.tif file or .ome.zarr folder name, "
+                               f"got {target.name}")
     return out
 
 
-def read_input(path: str, *, name: str = "INPUT") -> Any:
-    """Read an input stack; a folder or a missing file gets a message that says which."""
-    from ..io import read_stack
+def check_input(path: str, *, name: str = "INPUT") -> Path:
+    """An input path that exists and is a file or an OME-Zarr folder; say which when it is not."""
+    from ..io import is_ome_zarr
 
     source = Path(path)
-    if source.is_dir() and not source.name.lower().endswith(".zarr"):
-        raise CommandError(f"{name}: {source} is a folder; expected an OME-TIFF or TIFF file")
     if not source.exists():
-        raise CommandError(f"{name}: {source}: no such file")
-    return read_stack(source)
+        raise CommandError(f"{name}: {source}: no such file or folder")
+    if source.is_dir() and not (source.name.lower().endswith(".zarr") or is_ome_zarr(source)):
+        raise CommandError(f"{name}: {source} is a folder; expected an OME-TIFF or TIFF file, or "
+                           "an OME-Zarr folder (.ome.zarr)")
+    return source
+
+
+def read_input(path: str, *, name: str = "INPUT") -> Any:
+    """Read an input stack (OME-TIFF/TIFF file or OME-Zarr folder, lazily when large)."""
+    from ..io import read_stack
+
+    return read_stack(check_input(path, name=name))
+
+
+def is_zarr_output(path: Path) -> bool:
+    """Whether an output path names an OME-Zarr folder (written as a chunked pyramid)."""
+    return path.name.lower().endswith(OME_ZARR)
 
 
 def write_image(path: Path, data: Any, geometry: Any, *, metadata: dict[str, Any],
                 overwrite: bool, channel_names: list[str] | None = None) -> Path:
-    """Write *data* with its geometry (axes and µm scale) as OME-TIFF, atomically."""
-    from ..io import write_ome_tiff
+    """Write *data* with its geometry (axes and µm scale), atomically.
 
+    ``.ome.zarr`` outputs become a chunked, multiscale OME-Zarr folder written
+    chunk by chunk (a lazy dask result is never held whole in memory);
+    anything else an OME-TIFF.
+    """
+    from ..io import write_ome_tiff, write_ome_zarr
+
+    if is_zarr_output(path):
+        axes, scale, translate = geometry.axes, geometry.scale, geometry.translate
+        if axes.endswith("S"):  # NGFF has no sample axis: RGB becomes three channels
+            import numpy as np
+
+            data = np.moveaxis(np.asarray(data), -1, 0)
+            axes, scale, translate = "C" + axes[:-1], (1.0,) + scale[:-1], (0.0,) + translate[:-1]
+            channel_names = ["red", "green", "blue"]
+        with TerminalProgress(f"writing {path.name}") as progress:
+            return write_ome_zarr(path, data, axes=axes, scale=scale,
+                                  translate=translate, channel_names=channel_names,
+                                  metadata=metadata, overwrite=overwrite, progress=progress)
     return write_ome_tiff(path, data, axes=geometry.axes, scale=geometry.scale,
                           channel_names=channel_names, metadata=metadata, overwrite=overwrite)
 
@@ -92,6 +126,53 @@ def in_cli_words(record: dict[str, Any]) -> dict[str, Any]:
     words = {"z_step_from": "--z-step", "interval_from": "--interval"}
     return {key: (words[key] if key in words and value == "given" else value)
             for key, value in record.items()}
+
+
+def add_compute_options(parser: Any) -> None:
+    """``--workers N`` / ``--scheduler ADDRESS``: where a command's dask graphs run."""
+    group = parser.add_argument_group(
+        "where to compute (for OME-Zarr and other chunked inputs; default: threads on this machine)")
+    group.add_argument("--workers", type=int, default=None, metavar="N",
+                       help="start a local dask.distributed cluster of N worker processes for "
+                            "this command")
+    group.add_argument("--scheduler", default=None, metavar="ADDRESS",
+                       help="run on an existing dask.distributed cluster (e.g. tcp://host:8786)")
+
+
+@contextlib.contextmanager
+def compute_scheduler(args: Any) -> Iterator[Any]:
+    """Run the command's dask work on the cluster its options ask for (None: dask's threads).
+
+    A local cluster is started for the command and closed after it; an
+    existing scheduler is connected to and left running. Chunked inputs
+    (OME-Zarr, large TIFF) are then computed block by block on the workers.
+    """
+    workers, address = getattr(args, "workers", None), getattr(args, "scheduler", None)
+    if workers is None and address is None:
+        yield None
+        return
+    if workers is not None and address is not None:
+        raise CommandError("--workers/--scheduler: expected one of them, got both")
+    if workers is not None and workers < 1:
+        raise CommandError(f"--workers: expected a number of workers >= 1, got {workers}")
+    try:
+        from distributed import Client, LocalCluster
+    except ImportError:  # pragma: no cover - a dependency of stackdepth
+        raise CommandError("--workers/--scheduler: needs dask.distributed "
+                           "(pip install 'dask[distributed]')") from None
+    if address is not None:
+        try:
+            client = Client(address, timeout="10s")
+        except (OSError, TimeoutError) as exc:
+            raise CommandError(f"--scheduler: cannot reach {address} ({exc})") from None
+        with client:
+            yield client
+        return
+    threads = max(1, (os.cpu_count() or 1) // workers)
+    with LocalCluster(n_workers=workers, threads_per_worker=threads, processes=True,
+                      dashboard_address=None, silence_logs=logging.ERROR) as cluster, \
+            Client(cluster) as client:
+        yield client
 
 
 def print_notes(notes: Iterable[str]) -> None:

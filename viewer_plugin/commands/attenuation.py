@@ -21,6 +21,7 @@ from ..jobs.choices import ATTENUATION_CAVEAT, ATTENUATION_MODELS, DEFAULT_MAX_G
 from ._common import (
     CommandError,
     TerminalProgress,
+    add_compute_options,
     check_output_path,
     check_outputs,
     print_notes,
@@ -55,6 +56,7 @@ def register(sub: Any) -> None:
     parser.add_argument("--channel", type=int, default=None, metavar="N",
                         help="process only this channel (default: every channel)")
     parser.add_argument("--overwrite", action="store_true", help="replace existing output files")
+    add_compute_options(parser)
     parser.set_defaults(func=run)
 
 

@@ -25,10 +25,11 @@ from typing import Any
 from .._shared.jsonio import write_json
 from ..jobs.choices import BLEACHING_CAVEAT, EQUALISE_NOTE, RESCALE, TOLERANCE_NOTE
 from ._common import (
+    CommandError,
     EXIT_OK,
     EXIT_OVER_TOLERANCE,
-    CommandError,
     TerminalProgress,
+    add_compute_options,
     check_outputs,
     print_notes,
     read_input,
@@ -81,6 +82,7 @@ def register(sub: Any) -> None:
     parser.add_argument("--channel", type=int, default=None, metavar="N",
                         help="channel to check (default 0 when INPUT has several)")
     parser.add_argument("--overwrite", action="store_true", help="replace existing output files")
+    add_compute_options(parser)
     parser.set_defaults(func=run)
 
 

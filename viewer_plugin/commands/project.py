@@ -19,6 +19,7 @@ from ..jobs.choices import DEFAULT_CMAP, DEFAULT_METHOD, DEPTH_CODED, PROJECTION
 from ._common import (
     CommandError,
     TerminalProgress,
+    add_compute_options,
     check_output_path,
     in_cli_words,
     print_notes,
@@ -61,6 +62,7 @@ def register(sub: Any) -> None:
                         help="also save a figure (.png/.tif/.pdf) with colour bar and scale bar in "
                              "um, plus FIG.json (parameters) and FIG.methods.txt")
     parser.add_argument("--overwrite", action="store_true", help="replace existing output files")
+    add_compute_options(parser)
     parser.set_defaults(func=run)
 
 

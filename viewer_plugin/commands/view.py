@@ -6,7 +6,7 @@ import argparse
 from pathlib import Path
 from typing import Any
 
-from ._common import CommandError
+from ._common import CommandError, check_input
 
 #: Display names of the widgets, as in napari.yaml, in dock order.
 WIDGETS = (
@@ -18,11 +18,16 @@ WIDGETS = (
 )
 
 
+#: Width of the docked tools in pixels: readable, and leaves the image most of a 1600-pixel screen.
+DOCK_WIDTH = 430
+
+
 def register(sub: Any) -> None:
     parser = sub.add_parser("view", help="open napari with the stackdepth widgets",
                             description="Open napari with the five stackdepth widgets docked and "
-                            "a file (OME-TIFF or TIFF) or the synthetic demo loaded.")
-    parser.add_argument("path", nargs="?", help="OME-TIFF or TIFF stack to open")
+                            "a file (OME-TIFF or TIFF), an OME-Zarr folder (opened lazily) or the synthetic demo "
+                            "loaded.")
+    parser.add_argument("path", nargs="?", help="OME-TIFF or TIFF stack, or OME-Zarr folder, to open")
     parser.add_argument("--demo", action="store_true", help="load the synthetic fibre-slab demo")
     parser.add_argument("--screenshot", metavar="PNG",
                         help="save a screenshot of the window once it is shown, then quit")
@@ -30,12 +35,12 @@ def register(sub: Any) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from ..io.reader import stack_to_layers
-    from ..io.ometiff import read_stack
+    from ..io.reader import read_layers
 
     layers = []
     if args.path:
-        layers.extend(stack_to_layers(read_stack(args.path)))  # fails fast: exit 2 before the GUI
+        check_input(args.path)  # a missing file or a folder that is no image: exit 2 before the GUI
+        layers.extend(read_layers(args.path))  # OME-Zarr opens lazily, as a multiscale layer
     if args.demo:
         from ..samples import sample_fibre_slab
 
@@ -45,7 +50,7 @@ def run(args: argparse.Namespace) -> int:
     import napari
 
     viewer = napari.Viewer(title="stackdepth")
-    viewer.window.resize(1500, 950)
+    viewer.window.resize(1600, 1000)
     open_in_viewer(viewer, layers)
     if args.screenshot:
         from qtpy.QtCore import QTimer
@@ -71,11 +76,17 @@ def open_in_viewer(viewer: Any, layers: list[tuple[Any, dict[str, Any], str]]) -
         dock, widget = viewer.window.add_plugin_dock_widget("stackdepth", name)
         docks.append(dock)
         widgets.append(widget)
+    for dock, widget in zip(docks, widgets):
+        dock.setWindowTitle(widget.tab_title)  # short tab labels that read whole
     main_window = docks[0].parentWidget()
     if main_window is not None and hasattr(main_window, "tabifyDockWidget"):
+        from qtpy.QtCore import Qt
+
         for dock in docks[1:]:
             main_window.tabifyDockWidget(docks[0], dock)
         docks[0].raise_()
+        # the image keeps most of the window: the docks take a fixed, readable width
+        main_window.resizeDocks([docks[0]], [DOCK_WIDTH], Qt.Orientation.Horizontal)
     if layers and hasattr(widgets[0], "update_preview"):
         widgets[0].update_preview()  # depth at a glance: the downsampled depth colour preview
     return widgets

@@ -26,22 +26,17 @@ from .._shared.atomic import atomic_write
 from .._shared.jsonio import to_jsonable
 from .._shared.stack import AXES, Stack
 from .._shared.validation import check_stack, fail, is_dask
+from ._errors import StackReadError
+from ._units import LENGTH_UM as _LENGTH_UM
+from ._units import TIME_S as _TIME_S
 
 logger = logging.getLogger(__name__)
 
 __all__ = ["Stack", "StackData", "StackReadError", "read_stack", "write_ome_tiff", "NAMESPACE"]
 
 NAMESPACE = "stackdepth/"
-#: Conversion of OME length units to micrometres.
-_LENGTH_UM = {"µm": 1.0, "um": 1.0, "\u03bcm": 1.0, "micron": 1.0, "nm": 1e-3, "mm": 1e3,
-              "cm": 1e4, "m": 1e6, "pm": 1e-6, "Å": 1e-4}
-_TIME_S = {"s": 1.0, "ms": 1e-3, "µs": 1e-6, "min": 60.0, "h": 3600.0}
 #: Files larger than this are opened lazily (dask over tifffile's zarr store).
 LAZY_BYTES = 2 * 2**30
-
-
-class StackReadError(ValueError):
-    """A file could not be read as an image stack (message names file and problem)."""
 
 
 #: The container :func:`read_stack` returns (the shared :class:`~viewer_plugin._shared.stack.Stack`).

@@ -14,14 +14,8 @@ from .choices import ATTENUATION_CAVEAT, DEFAULT_MAX_GAIN
 from .provenance import provenance
 from .stack import Corrected, Selection, axis_step, geometry_of
 
-__all__ = [
-    "AttenuationOptions",
-    "Corrected",
-    "Measured",
-    "attenuation_record",
-    "correct_measured",
-    "measure_attenuation",
-]
+__all__ = ["AttenuationOptions", "Measured", "attenuation_record", "correct_measured",
+           "measure_attenuation"]
 
 
 @dataclass(frozen=True)

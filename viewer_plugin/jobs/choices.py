@@ -7,6 +7,7 @@ themselves and this module only adds the words a user reads.
 
 from __future__ import annotations
 
+from ..figures import METHOD_WORDS
 from ..kernels.attenuation import CAUTION as ATTENUATION_CAVEAT
 from ..kernels.attenuation import MODELS as ATTENUATION_MODELS
 from ..kernels.bleaching import RESCALE
@@ -60,19 +61,6 @@ METHOD_LABELS = {
     "tinted": "tinted: slices tinted by depth, then maximum",
     "occlusion": "occlusion: nearer structures partly hide deeper ones",
     "max": "max: maximum-intensity projection and its depth",
-}
-
-#: What each method shows, in the words of a methods section.
-METHOD_WORDS = {
-    "peak": "each pixel shows the depth of its strongest voxel along the optical axis, "
-            "with brightness from that voxel's intensity",
-    "weighted": "each pixel shows the intensity-weighted mean depth of the voxels along the "
-                "optical axis, with brightness from the maximum intensity",
-    "tinted": "every slice was tinted with the colour of its depth and the tinted slices were "
-              "combined by maximum-intensity projection",
-    "occlusion": "the stack was rendered with an emission-absorption model (nearer structures "
-                 "partly hide deeper ones); this is a rendering, not a measurement",
-    "max": "each pixel shows the maximum intensity along the optical axis",
 }
 
 #: Colour maps for depth, as (label, matplotlib name): perceptually uniform and

@@ -10,9 +10,13 @@ import numpy as np
 
 from .._shared.validation import fail
 from .choices import DEPTH_CODED
+from ..figures import FIGURE_FORMATS
 from .projection import Projected
 
-__all__ = ["figure_plane", "write_figure"]
+#: File suffixes a figure can be written as.
+FIGURE_SUFFIXES = tuple(FIGURE_FORMATS)
+
+__all__ = ["FIGURE_SUFFIXES", "figure_plane", "write_figure"]
 
 
 @dataclass(frozen=True)

@@ -16,15 +16,8 @@ from typing import Any
 from .._shared.stack import UNITS, Stack
 from .._shared.validation import check_int, check_number, fail
 
-__all__ = [
-    "Corrected",
-    "Geometry",
-    "Selection",
-    "axis_step",
-    "drop_axis",
-    "geometry_of",
-    "select",
-]
+__all__ = ["Corrected", "Geometry", "Selection", "axis_step", "drop_axis",
+           "geometry_of", "select"]
 
 
 @dataclass(frozen=True)
@@ -271,7 +264,3 @@ def describe_voxel(stack: Stack, depth_axis: int, step: float) -> list[float]:
     others = [i for i in range(len(stack.axes)) if i != depth_axis and stack.axes[i] in "ZYX"]
     return [float(step)] + [float(stack.scale[i]) for i in others[-2:]]
 
-
-def as_float_pair(value: Any) -> tuple[float, float] | None:
-    """A (low, high) pair as floats, or None."""
-    return None if value is None else (float(value[0]), float(value[1]))

@@ -98,6 +98,8 @@ class StackDock(Container):
     """
 
     title = ""
+    #: A short name for the dock's tab when the docks are stacked.
+    tab_title = ""
     #: "depth" (projections, attenuation) or "acquisition" (bleaching: time, else depth).
     axis_role = "depth"
 

@@ -84,6 +84,7 @@ class AttenuationWidget(StackDock):
     """Dock widget "Depth attenuation" (see the module docstring)."""
 
     title = "Depth attenuation"
+    tab_title = "Attenuation"
 
     def __init__(self, napari_viewer: "napari.Viewer") -> None:
         self.fit_result: Any = None

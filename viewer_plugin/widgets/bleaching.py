@@ -52,6 +52,7 @@ class BleachingWidget(StackDock):
     """
 
     title = "Bleaching check"
+    tab_title = "Bleaching"
     axis_role = "acquisition"
 
     def __init__(self, napari_viewer: "napari.Viewer") -> None:

@@ -41,6 +41,7 @@ class DepthColourWidget(ProjectionDock):
     """
 
     title = "Depth colour projection"
+    tab_title = "Depth colour"
 
     def __init__(self, napari_viewer: "napari.Viewer") -> None:
         from qtpy.QtCore import QTimer

@@ -99,6 +99,7 @@ class PeakDepthWidget(ProjectionDock):
     """
 
     title = "Peak depth map"
+    tab_title = "Peak depth"
 
     def _add_options(self) -> None:
         self.depth_cmap = ComboBox(label="Depth map colours", choices=list(DEPTH_MAP_COLOURS),
@@ -151,6 +152,7 @@ class OcclusionWidget(ProjectionDock):
     """
 
     title = "Occlusion projection"
+    tab_title = "Occlusion"
 
     def _add_options(self) -> None:
         self.auto_density = CheckBox(text="Automatic density (from the stack's depth)", value=True)

@@ -10,12 +10,23 @@
 * :func:`depth_colours`, :func:`display_limits` -- the per-slice colours and
   default display limits the projections use.
 
-Every projection is a chunk -> combine -> aggregate reduction over z-chunks
-(:mod:`.reduction`): numpy arrays are folded in place by compiled loops
-(:mod:`._compiled`), progress is reported between chunks, and no float copy
-of the whole stack is ever made. Call :func:`warm_up` once, e.g. in a
-background thread, to compile (or load from the on-disk cache) before the
-first use.
+Every projection is a chunk -> combine -> aggregate reduction over depth
+(:mod:`.reduction`), its per-pixel state folded by compiled loops
+(:mod:`._compiled`):
+
+* a numpy stack is folded in place, z-chunk after z-chunk, into one state of
+  the whole image, with progress between chunks and no float copy of the
+  stack;
+* a dask stack (any chunking) becomes one dask graph (:mod:`.graph`): each
+  group of neighbouring blocks is folded into a partial state by its own
+  task, with global slice indices; the partials of each lateral tile are
+  combined in a tree, in depth order; the tile states are assembled and
+  aggregated into the result. The graph is computed once, with the active
+  scheduler (a ``dask.distributed`` client runs the blocks on its workers),
+  and progress counts the fold tasks as they finish.
+
+Call :func:`warm_up` once, e.g. in a background thread, to compile (or load
+from the on-disk cache) before the first use.
 """
 
 from __future__ import annotations
@@ -28,6 +39,7 @@ from .legend import DepthLegend, depth_legend
 from .limits import CLIM_PERCENTILES, display_limits
 from .occlusion import DEFAULT_OPTICAL_DEPTH, VIEWS, default_density, occlusion_projection
 from .peak import PeakProjection, peak_projection
+from .reduction import combine_peak
 
 __all__ = [
     "CLIM_PERCENTILES",
@@ -76,8 +88,11 @@ def warm_up() -> None:
     for dtype in (np.uint16, np.uint8, np.float32):  # the commonest microscopy dtype first
         tiny = np.zeros((3, 4, 8), dtype)
         tiny[1, 1, 1] = 1
-        peak_projection(tiny)
+        result = peak_projection(tiny)
+        partial = (result.peak, result.index)
+        combine_peak(partial, partial)  # the combine of dask partials
         for method in METHODS:
             depth_coded_projection(tiny, method=method, clim=(0, 1))
-        occlusion_projection(tiny, clim=(0, 1))
-        occlusion_projection(tiny, clim=(0, 1), cmap="viridis")
+        for density in (0.1, 1.0):  # optically thin slices (the default on most stacks), thick
+            occlusion_projection(tiny, clim=(0, 1), density=density)
+            occlusion_projection(tiny, clim=(0, 1), density=density, cmap="viridis")

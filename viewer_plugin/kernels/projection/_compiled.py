@@ -33,10 +33,9 @@ __all__ = [
     "peak_update",
     "weighted_update",
     "tinted_update",
-    "occlusion_update_lut",
-    "occlusion_update_float",
-    "occlusion_rgb_update_lut",
-    "occlusion_rgb_update_float",
+    "peak_merge",
+    "occlusion_update",
+    "occlusion_rgb_update",
     "finish_depth_index",
     "finish_depth_sums",
     "finish_brightness",
@@ -44,6 +43,8 @@ __all__ = [
 ]
 
 _OPTS = dict(parallel=True, cache=True, nogil=True)
+#: Multiply-adds may be fused (one rounding instead of two), nothing else relaxed.
+_CONTRACT = {"contract"}
 
 
 def _top(x, y):
@@ -233,6 +234,30 @@ _GROUP = 16
 
 
 @njit(**_OPTS)
+def peak_merge(vals, idx, later_vals, later_idx, out_vals, out_idx):
+    """The combine of two (maximum, index) states; *later* covers the deeper slices.
+
+    2-D arrays of equal shape; the outputs may be the first inputs (in
+    place). The later index wins only where it saw a value (index >= 0) that
+    is strictly larger, or where the earlier saw none: ties keep the
+    earlier, smaller index. The maximum itself is then ``_top`` of both (a
+    state that saw nothing holds NaN or the dtype's minimum).
+    """
+    nr, nc = vals.shape
+    for r in prange(nr):
+        v = vals[r]
+        ix = idx[r]
+        w = later_vals[r]
+        jx = later_idx[r]
+        ov = out_vals[r]
+        ox = out_idx[r]
+        for c in range(nc):
+            take = (jx[c] >= 0) & ((w[c] > v[c]) | (ix[c] < 0))
+            ox[c] = _replace(ix[c], take, jx[c])
+            ov[c] = _top(v[c], w[c])
+
+
+@njit(**_OPTS)
 def weighted_update(block, z0, lo, scale, vals, sum_u, sum_uz):
     """Fold *block* into (max, sum of u, sum of u * z).
 
@@ -360,124 +385,275 @@ def tinted_update(block, z0, lo, scale, colours, vals, idx, tint):
             z += 1
 
 
-@njit(**_OPTS)
-def occlusion_update_lut(block, emit, keep, reverse, colour, trans):
-    """Front-to-back compositing of an unsigned-integer *block* through tables.
+@intrinsic
+def _pow2(typingctx, n):
+    """``2.0 ** n`` in float32 for an int32 n in [-126, 127], from its bits (vectorises)."""
+    if not isinstance(n, types.Integer):
+        return None
 
-    ``emit[x] = a * u`` and ``keep[x] = 1 - a`` for every value x the dtype
-    can hold (no ``exp`` per voxel). *reverse* composites from the last slice
-    of the block to the first. Four slices are composited in registers before
-    the state (float64 colour and transmittance) is written back.
+    def codegen(context, builder, signature, args):
+        i32 = ir.IntType(32)
+        n32 = context.cast(builder, args[0], signature.args[0], types.int32)
+        biased = builder.add(n32, ir.Constant(i32, 127))
+        return builder.bitcast(builder.shl(biased, ir.Constant(i32, 23)), ir.FloatType())
+
+    return types.float32(n), codegen
+
+
+#: ln 2 in two parts (Cody & Waite): n * _LN2_HI is exact in float32 for |n| < 512.
+_LN2_HI = np.float32(0.693359375)
+_LN2_LO = np.float32(-2.12194440e-4)
+_LOG2E = np.float32(1.4426950408889634)
+
+
+#: Optical depth of one slice up to which 1 - exp(-w) is taken from its series directly.
+SERIES_DEPTH = 0.34657359  # ln(2) / 2
+
+
+@njit(inline="always", fastmath=_CONTRACT)
+def _expm1_series(r):
+    """``exp(r) - 1`` for ``|r| <= ln2 / 2`` in float32: Taylor to r**7, error below 2e-8 relative."""
+    return r * (np.float32(1.0) + r * (np.float32(1 / 2) + r * (np.float32(1 / 6) + r * (
+        np.float32(1 / 24) + r * (np.float32(1 / 120) + r * (
+            np.float32(1 / 720) + r * np.float32(1 / 5040)))))))
+
+
+@njit(inline="always", fastmath=_CONTRACT)
+def _absorbance(w, thin):
+    """``1 - exp(-w)`` in float32 for w >= 0, to about one ulp, without a branch per voxel.
+
+    *thin* (``w <= SERIES_DEPTH`` for every voxel): the series alone, written
+    for ``-expm1(-w)`` directly. Otherwise ``-w = n ln2 + r`` with ``|r| <=
+    ln2 / 2`` and ``1 - exp(-w) = (1 - 2**n) - 2**n expm1(r)``, without
+    cancellation for small w; w is clamped at 87 (exp(-87) ~ 1.6e-38: opaque).
+    """
+    if thin:
+        return w * (np.float32(1.0) - w * (np.float32(1 / 2) - w * (np.float32(1 / 6) - w * (
+            np.float32(1 / 24) - w * (np.float32(1 / 120) - w * (
+                np.float32(1 / 720) - w * np.float32(1 / 5040)))))))
+    y = -_min_ordered(w, np.float32(87.0))
+    n = np.floor(y * _LOG2E + np.float32(0.5))
+    r = (y - n * _LN2_HI) - n * _LN2_LO
+    s = _pow2(np.int32(n))
+    return (np.float32(1.0) - s) - s * _expm1_series(r)
+
+
+@njit(inline="always")
+def _norm(lo, scale, kappa, thin):
+    """What the compositing loops need of the normalisation and the slice's optical depth.
+
+    ``(lo, kappa * scale)`` in float64 for floating-point input;
+    ``(kappa * scale, kappa * scale * lo)`` in float32 for 8/16-bit input;
+    kappa in float32, negative to mark *thin*.
+    """
+    ks = kappa * scale
+    k32 = np.float32(kappa)
+    return (np.float64(lo), np.float64(ks), np.float32(ks), np.float32(ks * lo),
+            -k32 if thin else k32)
+
+
+def _depth_of(x, norm):
+    """Optical depth ``w = kappa * clip((x - lo) * scale, 0, 1)`` of a voxel, float32; NaN -> 0."""
+
+
+@overload(_depth_of)
+def _depth_of_impl(x, norm):
+    if isinstance(x, types.Integer):  # 8/16-bit values are exact in float32: one multiply-add
+        def from_int(x, norm):
+            w = np.float32(x) * norm[2] - norm[3]
+            return _min_ordered(_max_ordered(w, np.float32(0.0)), abs(norm[4]))
+        return from_int
+
+    def from_float64(x, norm):  # offset data keeps its precision
+        w = (np.float64(x) - norm[0]) * norm[1]
+        w = w if w > 0.0 else 0.0
+        return np.float32(min(w, np.float64(abs(norm[4]))))
+    return from_float64
+
+
+@njit(inline="always", fastmath=_CONTRACT)
+def _absorb(x, norm):
+    """(opacity ``a = 1 - exp(-w)``, ``a * w``) of a voxel, float32.
+
+    The emission is ``a * u = a * w / kappa``: the loops divide by kappa once
+    per step, not per voxel.
+    """
+    w = _depth_of(x, norm)
+    a = _absorbance(w, norm[4] < np.float32(0.0))
+    return a, a * w
+
+
+@njit(inline="always", fastmath=_CONTRACT)
+def _over4(aa, ab, ac, ad, ea, eb, ec, ed):
+    """(opacity, emission) of four slices composited front to back, in float32.
+
+    ``A = 1 - prod(1 - a_i)`` and ``E = sum_i e_i prod_{j<i} (1 - a_j)`` in
+    Horner form: both stay accurate to a few ulp relative however small
+    they are, so ``T * (1 - A)`` in float64 loses nothing that accumulates.
+    """
+    one = np.float32(1.0)
+    ka = one - aa
+    kb = one - ab
+    kc = one - ac
+    return aa + ka * (ab + kb * (ac + kc * ad)), ea + ka * (eb + kb * (ec + kc * ed))
+
+
+@njit(inline="always")
+def _step_slice(nz, k, reverse):
+    """The slice composited at step *k*: k from the front, or from the back if *reverse*."""
+    return nz - 1 - k if reverse else k
+
+
+@njit(inline="always")
+def _four_steps(block, k, r, reverse):
+    """Row *r* of the slices of steps k .. k+3, in the order they are composited."""
+    if reverse:
+        z = block.shape[0] - 1 - k
+        return block[z, r], block[z - 1, r], block[z - 2, r], block[z - 3, r]
+    return _four_rows(block, k, r)
+
+
+@njit(inline="always", fastmath=_CONTRACT)
+def _absorb4(rows4, c, norm):
+    """Opacities and emissions (:func:`_absorb`) of column *c* of four rows."""
+    ra, rb, rc, rd = rows4
+    aa, ea = _absorb(ra[c], norm)
+    ab, eb = _absorb(rb[c], norm)
+    ac, ec = _absorb(rc[c], norm)
+    ad, ed = _absorb(rd[c], norm)
+    return aa, ab, ac, ad, ea, eb, ec, ed
+
+
+@njit(inline="always", fastmath=_CONTRACT)
+def _grey4(rows4, norm, a4, e4):
+    """Opacity and emission of four rows of slices composited (:func:`_over4`), into a4, e4.
+
+    Pure float32, apart from the float64 state, so that it vectorises at full
+    width; one loop per case of *thin* (the test would leave the vector loop).
+    """
+    if norm[4] < np.float32(0.0):
+        for c in range(a4.shape[0]):
+            aa, ab, ac, ad, ea, eb, ec, ed = _absorb4(rows4, c, norm)
+            a4[c], e4[c] = _over4(aa, ab, ac, ad, ea, eb, ec, ed)
+        return
+    for c in range(a4.shape[0]):
+        aa, ab, ac, ad, ea, eb, ec, ed = _absorb4(rows4, c, norm)
+        a4[c], e4[c] = _over4(aa, ab, ac, ad, ea, eb, ec, ed)
+
+
+@njit(inline="always", fastmath=_CONTRACT)
+def _rgb4(rows4, norm, q, a4, e3):
+    """As :func:`_grey4`, each slice's emission times its colour (q: 4 x 3 float32), into e3 (3, cols)."""
+    if norm[4] < np.float32(0.0):
+        for c in range(a4.shape[0]):
+            _rgb_column(_absorb4(rows4, c, norm), q, a4, e3, c)
+        return
+    for c in range(a4.shape[0]):
+        _rgb_column(_absorb4(rows4, c, norm), q, a4, e3, c)
+
+
+@njit(inline="always", fastmath=_CONTRACT)
+def _rgb_column(ae, q, a4, e3, c):
+    """Column *c* of :func:`_rgb4` from the opacities and emissions *ae* of its four voxels."""
+    aa, ab, ac, ad, ea, eb, ec, ed = ae
+    a4[c], e3[0, c] = _over4(aa, ab, ac, ad, ea * q[0], eb * q[3], ec * q[6], ed * q[9])
+    e3[1, c] = _over4(aa, ab, ac, ad, ea * q[1], eb * q[4], ec * q[7], ed * q[10])[1]
+    e3[2, c] = _over4(aa, ab, ac, ad, ea * q[2], eb * q[5], ec * q[8], ed * q[11])[1]
+
+
+@njit(inline="always", fastmath=_CONTRACT)
+def _one_step(row, norm, a4, e4):
+    """Opacity and emission of one row of a slice (the last slices of a block), into a4, e4."""
+    for c in range(a4.shape[0]):
+        a4[c], e4[c] = _absorb(row[c], norm)
+
+
+@njit(fastmath=_CONTRACT, **_OPTS)
+def occlusion_update(block, lo, scale, kappa, thin, reverse, colour, trans):
+    """Front-to-back compositing of *block* into (float32 colour, float64 transmittance).
+
+    Each voxel has optical depth ``w = kappa * u``, ``u = clip((x - lo) *
+    scale, 0, 1)``, opacity ``a = 1 - exp(-w)`` (:func:`_absorbance`; *thin*
+    when ``kappa <= SERIES_DEPTH``) and emits ``a * u``. Four slices at a
+    time are composited in float32 (:func:`_over4`, vectorised), then added
+    to the state: ``C += T * E`` (one float32 rounding per four slices) and
+    ``T -= T * A`` in float64. *reverse* composites from the last slice of
+    the block to the first. Threads take bands of ``_BAND`` rows, as
+    :func:`peak_update`.
     """
     nz, nr, nc = block.shape
-    for r in prange(nr):
-        col = colour[r]
-        tr = trans[r]
+    norm = _norm(lo, scale, kappa, thin)
+    per_kappa = 1.0 / kappa if kappa > 0.0 else 0.0
+    for b in prange(_n_bands(nr)):
+        a4 = np.empty(nc, np.float32)
+        e4 = np.empty(nc, np.float32)
         k = 0
-        while k + 4 <= nz:
-            z = nz - 4 - k if reverse else k
-            ra = block[z + 3, r] if reverse else block[z, r]
-            rb = block[z + 2, r] if reverse else block[z + 1, r]
-            rc = block[z + 1, r] if reverse else block[z + 2, r]
-            rd = block[z, r] if reverse else block[z + 3, r]
-            for c in range(nc):
-                ja = np.uint64(ra[c])
-                jb = np.uint64(rb[c])
-                jc = np.uint64(rc[c])
-                jd = np.uint64(rd[c])
-                t = tr[c]
-                acc = col[c] + t * emit[ja]
-                t *= keep[ja]
-                acc += t * emit[jb]
-                t *= keep[jb]
-                acc += t * emit[jc]
-                t *= keep[jc]
-                acc += t * emit[jd]
-                col[c] = acc
-                tr[c] = t * keep[jd]
-            k += 4
         while k < nz:
-            z = nz - 1 - k if reverse else k
-            row = block[z, r]
-            for c in range(nc):
-                j = np.uint64(row[c])
-                t = tr[c]
-                col[c] += t * emit[j]
-                tr[c] = t * keep[j]
-            k += 1
+            step = 4 if k + 4 <= nz else 1
+            for r in _band(b, nr):
+                if step == 4:
+                    _grey4(_four_steps(block, k, r, reverse), norm, a4, e4)
+                else:
+                    _one_step(block[_step_slice(nz, k, reverse), r], norm, a4, e4)
+                col = colour[r]
+                tr = trans[r]
+                for c in range(nc):
+                    t = tr[c]
+                    col[c] = np.float32(np.float64(col[c]) + t * np.float64(e4[c]) * per_kappa)
+                    tr[c] = t - t * np.float64(a4[c])
+            k += step
 
 
-@njit(**_OPTS)
-def occlusion_update_float(block, lo, scale, kappa, reverse, colour, trans):
-    """Front-to-back compositing of a floating-point *block* (exact exp)."""
+@njit(inline="always")
+def _step_colours(colours, z0, nz, k, reverse):
+    """The float32 colours of the slices of steps k .. k+3, flat (slice-major), 12 values."""
+    return (_rgb32(colours, z0 + _step_slice(nz, k, reverse))
+            + _rgb32(colours, z0 + _step_slice(nz, k + 1, reverse))
+            + _rgb32(colours, z0 + _step_slice(nz, k + 2, reverse))
+            + _rgb32(colours, z0 + _step_slice(nz, k + 3, reverse)))
+
+
+@njit(fastmath=_CONTRACT, **_OPTS)
+def occlusion_rgb_update(block, z0, lo, scale, kappa, thin, reverse, colours, colour, trans):
+    """As :func:`occlusion_update`, slice z emitting ``a * u * colours[z0 + z]``.
+
+    ``colour`` is planar float32 (3, rows, cols); the transmittance float64.
+    *colours* are the slice colours divided by kappa (0 where kappa is 0).
+    """
     nz, nr, nc = block.shape
-    for r in prange(nr):
-        col = colour[r]
-        tr = trans[r]
-        for k in range(nz):
-            z = nz - 1 - k if reverse else k
-            row = block[z, r]
-            for c in range(nc):
-                u = (np.float64(row[c]) - lo) * scale
-                u = u if u > 0.0 else 0.0
-                u = u if u < 1.0 else 1.0
-                t = tr[c]
-                keep = np.exp(-kappa * u)
-                col[c] += t * (1.0 - keep) * u
-                tr[c] = t * keep
-
-
-@njit(**_OPTS)
-def occlusion_rgb_update_lut(block, z0, emit, keep, reverse, colours, colour, trans):
-    """As :func:`occlusion_update_lut`, emitting ``u * colours[z]``; planar RGB state (3, rows, cols)."""
-    nz, nr, nc = block.shape
-    for r in prange(nr):
-        k0 = colour[0, r]
-        k1 = colour[1, r]
-        k2 = colour[2, r]
-        tr = trans[r]
-        for k in range(nz):
-            z = nz - 1 - k if reverse else k
-            row = block[z, r]
-            c0 = colours[z0 + z, 0]
-            c1 = colours[z0 + z, 1]
-            c2 = colours[z0 + z, 2]
-            for c in range(nc):
-                j = np.uint64(row[c])
-                t = tr[c]
-                e = t * emit[j]
-                k0[c] += e * c0
-                k1[c] += e * c1
-                k2[c] += e * c2
-                tr[c] = t * keep[j]
-
-
-@njit(**_OPTS)
-def occlusion_rgb_update_float(block, z0, lo, scale, kappa, reverse, colours, colour, trans):
-    """As :func:`occlusion_update_float`, emitting ``u * colours[z]``; planar RGB state (3, rows, cols)."""
-    nz, nr, nc = block.shape
-    for r in prange(nr):
-        k0 = colour[0, r]
-        k1 = colour[1, r]
-        k2 = colour[2, r]
-        tr = trans[r]
-        for k in range(nz):
-            z = nz - 1 - k if reverse else k
-            row = block[z, r]
-            c0 = colours[z0 + z, 0]
-            c1 = colours[z0 + z, 1]
-            c2 = colours[z0 + z, 2]
-            for c in range(nc):
-                u = (np.float64(row[c]) - lo) * scale
-                u = u if u > 0.0 else 0.0
-                u = u if u < 1.0 else 1.0
-                t = tr[c]
-                keep = np.exp(-kappa * u)
-                e = t * (1.0 - keep) * u
-                k0[c] += e * c0
-                k1[c] += e * c1
-                k2[c] += e * c2
-                tr[c] = t * keep
+    norm = _norm(lo, scale, kappa, thin)
+    for b in prange(_n_bands(nr)):
+        a4 = np.empty(nc, np.float32)
+        e3 = np.empty((3, nc), np.float32)
+        k = 0
+        while k < nz:
+            step = 4 if k + 4 <= nz else 1
+            if step == 4:
+                q = _step_colours(colours, z0, nz, k, reverse)
+            else:  # one slice: its colour four times, the first used
+                q3 = _rgb32(colours, z0 + _step_slice(nz, k, reverse))
+                q = q3 + q3 + q3 + q3
+            for r in _band(b, nr):
+                if step == 4:
+                    _rgb4(_four_steps(block, k, r, reverse), norm, q, a4, e3)
+                else:
+                    _one_step(block[_step_slice(nz, k, reverse), r], norm, a4, e3[1])
+                    for c in range(nc):
+                        e3[0, c] = e3[1, c] * q[0]
+                        e3[2, c] = e3[1, c] * q[2]
+                        e3[1, c] *= q[1]
+                k0 = colour[0, r]
+                k1 = colour[1, r]
+                k2 = colour[2, r]
+                tr = trans[r]
+                for c in range(nc):
+                    t = tr[c]
+                    t32 = np.float32(t)
+                    k0[c] += t32 * e3[0, c]
+                    k1[c] += t32 * e3[1, c]
+                    k2[c] += t32 * e3[2, c]
+                    tr[c] = t - t * np.float64(a4[c])
+            k += step
 
 
 # --- aggregate: from the final state to depth, brightness and colour -----------

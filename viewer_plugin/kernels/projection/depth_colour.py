@@ -8,6 +8,7 @@ and the brightness is relative (display limits), not calibrated intensity.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import partial
 from typing import Any, Optional
 
 import numpy as np
@@ -15,11 +16,11 @@ import numpy as np
 from ..._shared.progress import Progress
 from ..._shared.validation import check_choice, check_number
 from . import _compiled as nb
-from ._common import KERNEL_LOCK, depth_view, index_dtype, initial_values, resolve_depth_range, rows
+from ._common import KERNEL_LOCK, depth_view, initial_values, resolve_depth_range, rows
 from .colour import depth_colours, resolve_lut
-from .limits import background_floor, resolve_clim
-from .peak import fold_peak
-from .reduction import fold_chunks, kernel_dtype
+from .limits import resolve_clim, weighted_clim
+from .peak import fold_peak, start_peak
+from .reduction import DepthFold, combine_tinted, combine_weighted, kernel_dtype, reduce_depth
 
 __all__ = ["METHODS", "DepthCodedProjection", "depth_coded_projection"]
 
@@ -89,20 +90,25 @@ def _coded_peak(v: Any, lo: float, scale: float, gamma: float, z_step: float,
     return (depth, *_finish_colour(vals, depth, lo, scale, gamma, d_range, lut))
 
 
+def _start_weighted(shape: tuple, kdtype: np.dtype) -> tuple:
+    """Fresh (maximum, sum of u, sum of u * z) state."""
+    return initial_values(shape, kdtype), np.zeros(shape, np.float64), np.zeros(shape, np.float64)
+
+
+def _update_weighted(block: np.ndarray, z0: int, state: tuple, *, lo: float, scale: float) -> None:
+    nb.weighted_update(block, z0, lo, scale, *state)
+
+
 def _weighted_depth(v: Any, lo: float, scale: float, z_step: float,
                     progress: Progress) -> tuple[np.ndarray, np.ndarray]:
     """(maximum, intensity-weighted mean depth in µm); the float64 sums die on return."""
-    others = v.shape[1:]
-    vals = initial_values(others, kernel_dtype(v.dtype))
-    sum_u = np.zeros(others, np.float64)
-    sum_uz = np.zeros(others, np.float64)
-
-    def fold(block: np.ndarray, z0: int, index: tuple) -> None:
-        nb.weighted_update(block, z0, lo, scale, vals[index], sum_u[index], sum_uz[index])
-
+    kdtype = kernel_dtype(v.dtype)
+    fold = DepthFold(start=partial(_start_weighted, kdtype=kdtype),
+                     update=partial(_update_weighted, lo=lo, scale=scale),
+                     combine=combine_weighted, dtype=kdtype)
+    vals, sum_u, sum_uz = reduce_depth(v, fold, progress)
+    depth = np.empty(vals.shape, np.float32)
     with KERNEL_LOCK:
-        fold_chunks(v, fold, progress=progress)
-        depth = np.empty(others, np.float32)
         nb.finish_depth_sums(rows(sum_u), rows(sum_uz), z_step, rows(depth))
     return vals, depth
 
@@ -115,24 +121,32 @@ def _coded_weighted(v: Any, lo: float, scale: float, gamma: float, z_step: float
     return (depth, *_finish_colour(vals, depth, lo, scale, gamma, d_range, lut))
 
 
+def _start_tinted(shape: tuple, kdtype: np.dtype, n: int) -> tuple:
+    """Fresh (maximum, index, planar tint) state; tint is (..., 3, rows, cols) float32."""
+    tint = np.zeros(shape[:-2] + (3,) + shape[-2:], np.float32)
+    return (*start_peak(shape, kdtype, n), tint)
+
+
+def _update_tinted(block: np.ndarray, z0: int, state: tuple, *, lo: float, scale: float,
+                   colours: np.ndarray) -> None:
+    nb.tinted_update(block, z0, lo, scale, colours, *state)
+
+
 def _coded_tinted(v: Any, lo: float, scale: float, gamma: float, z_step: float,
                   colours: np.ndarray, progress: Progress) -> tuple:
     """(depth_um, brightness, rgb) of the tinted method; rgb = max_z colour_z * u_z**gamma.
 
     rgb is a (..., rows, cols, 3) view of the channel-planar state: no copy.
     """
-    others = v.shape[1:]
-    vals = initial_values(others, kernel_dtype(v.dtype))
-    idx = np.full(others, -1, index_dtype(v.shape[0]))
-    tint = np.zeros(others[:-2] + (3,) + others[-2:], np.float32)
+    kdtype = kernel_dtype(v.dtype)
     # colour * u**g == (colour**(1/g) * u)**g, so gamma is applied once at the end
     pre = np.ascontiguousarray(colours ** (1.0 / gamma))
-
-    def fold(block: np.ndarray, z0: int, index: tuple) -> None:
-        nb.tinted_update(block, z0, lo, scale, pre, vals[index], idx[index], tint[index])
-
+    fold = DepthFold(start=partial(_start_tinted, kdtype=kdtype, n=int(v.shape[0])),
+                     update=partial(_update_tinted, lo=lo, scale=scale, colours=pre),
+                     combine=combine_tinted, dtype=kdtype)
+    vals, idx, tint = reduce_depth(v, fold, progress)
+    others = vals.shape
     with KERNEL_LOCK:
-        fold_chunks(v, fold, progress=progress)
         depth = np.empty(others, np.float32)
         bright = np.empty(others, np.float32)
         nb.finish_depth_index(rows(vals), rows(idx), lo, z_step, rows(depth))
@@ -161,6 +175,7 @@ def depth_coded_projection(
     stack : array_like or dask array
         Stack with at least 3 dimensions; integer, boolean or floating point.
         NaN counts as no signal. Not modified.
+        A dask array is computed as one graph on the active dask scheduler.
     z_step : float, optional
         Slice spacing in µm (> 0). Depths are ``index * z_step`` from the
         first slice along *axis*.
@@ -204,7 +219,8 @@ def depth_coded_projection(
     axis : int, optional
         The depth axis (default 0); other axes are kept.
     progress : callable, optional
-        ``progress(done, total)`` between z-chunks; may raise Cancelled.
+        ``progress(done, total)`` as z-chunks (numpy) or groups of blocks
+        (dask) are folded; may raise Cancelled, which stops the computation.
 
     Returns
     -------
@@ -257,11 +273,8 @@ def depth_coded_projection(
     lut = resolve_lut(cmap)
     gamma = check_number(gamma, name="gamma", low=0.0, low_open=True)
     d_range = resolve_depth_range(depth_range, n, z_step)
-    lo, hi = resolve_clim(clim, v)
-    if clim is None and method == "weighted":
-        # background voxels all along the ray would pull every depth to mid-stack
-        lo = max(lo, background_floor(v))
-        hi = hi if hi > lo else lo + max(1.0, abs(lo)) * 1e-6
+    # background voxels all along the ray would pull every weighted depth to mid-stack
+    lo, hi = weighted_clim(v) if clim is None and method == "weighted" else resolve_clim(clim, v)
     scale = 1.0 / (hi - lo)
     if method == "tinted":
         colours = depth_colours(n, z_step=z_step, cmap=lut, depth_range=d_range)

@@ -18,6 +18,8 @@ __all__ = [
     "estimate_clim",
     "percentiles_from_sample",
     "resolve_clim",
+    "strided_samples",
+    "weighted_clim",
 ]
 
 #: Percentiles of the stack used as display limits when ``clim=None``.
@@ -27,16 +29,27 @@ SAMPLE_INT = 2**20
 SAMPLE_FLOAT = 2**18
 
 
-def _sample(v: Any, budget: int) -> np.ndarray:
-    """A strided subsample of about *budget* values (whole rows of pixels)."""
+def _strided(v: Any, budget: int) -> Any:
+    """A strided subsample of about *budget* values (whole rows of pixels), not computed."""
     n, rows = int(v.shape[0]), int(v.shape[-2])
     need = max(1, math.ceil(int(np.prod(v.shape, dtype=np.int64)) / budget))
     step_rows = min(rows, need)
     step_z = min(n, max(1, math.ceil(need / step_rows)))
-    part = v[step_z // 2 :: step_z, ..., step_rows // 2 :: step_rows, :]
-    if is_dask(part):
-        part = part.compute()
-    return np.asarray(part).ravel()
+    return v[step_z // 2 :: step_z, ..., step_rows // 2 :: step_rows, :]
+
+
+def strided_samples(v: Any, *budgets: int) -> list[np.ndarray]:
+    """Flat strided subsamples of about each of *budgets* values from the depth-first *v*.
+
+    For a dask stack all samples come from one graph computed once (blocks
+    that several samples touch are read once).
+    """
+    parts = [_strided(v, budget) for budget in budgets]
+    if is_dask(v):
+        import dask
+
+        parts = dask.compute(*parts)
+    return [np.asarray(part).ravel() for part in parts]
 
 
 def percentiles_from_sample(sample: np.ndarray, q: tuple[float, float]) -> tuple[float, float]:
@@ -67,33 +80,54 @@ def percentiles_from_sample(sample: np.ndarray, q: tuple[float, float]) -> tuple
     return float(low), float(high)
 
 
-def estimate_clim(v: Any, q: tuple[float, float] = (0.1, 99.9)) -> tuple[float, float]:
+def _clim_budget(v: Any) -> int:
+    return SAMPLE_INT if np.dtype(v.dtype).kind in "uib" else SAMPLE_FLOAT
+
+
+def estimate_clim(v: Any, q: tuple[float, float] = (0.1, 99.9), *,
+                  sample: Any = None) -> tuple[float, float]:
     """Display limits from percentiles of a strided subsample of the stack.
 
     A constant stack (``high <= low``) gets ``high = low + 1`` for integer
     data (``low + 1e-6 * max(1, |low|)`` for floats): nothing in it then
-    counts as signal.
+    counts as signal. *sample* replaces the subsample (from
+    :func:`strided_samples` with the budget of the dtype).
     """
     kind = np.dtype(v.dtype).kind
-    budget = SAMPLE_INT if kind in "uib" else SAMPLE_FLOAT
-    low, high = percentiles_from_sample(_sample(v, budget), q)
+    if sample is None:
+        (sample,) = strided_samples(v, _clim_budget(v))
+    low, high = percentiles_from_sample(sample, q)
     if high <= low:
         high = low + (1.0 if kind in "uib" else 1e-6 * max(1.0, abs(low)))
     return low, high
 
 
-def background_floor(v: Any, n_sigma: float = 3.0) -> float:
+def background_floor(v: Any, n_sigma: float = 3.0, *, sample: Any = None) -> float:
     """Background level + *n_sigma* spreads, from a strided subsample.
 
     Uses :func:`..primitives.background.background_level` (sigma-clipped mean) on about
-    2.6e5 values; the default lower limit of weighted depth codes.
+    2.6e5 values; the default lower limit of weighted depth codes. *sample*
+    replaces the subsample.
     """
-    sample = _sample(v, SAMPLE_FLOAT).astype(np.float64)
+    if sample is None:
+        (sample,) = strided_samples(v, SAMPLE_FLOAT)
+    sample = np.asarray(sample).astype(np.float64)
     sample = sample[np.isfinite(sample)]
     if sample.size == 0:
         return 0.0
     bg = background_level(sample[None, :], step=1, n_sigma=n_sigma)
     return float(bg.level + n_sigma * bg.sigma)
+
+
+def weighted_clim(v: Any) -> tuple[float, float]:
+    """Default limits of weighted depth codes: percentiles, lo raised to the background floor.
+
+    Both subsamples are taken in one pass (one graph for a dask stack).
+    """
+    for_clim, for_floor = strided_samples(v, _clim_budget(v), SAMPLE_FLOAT)
+    lo, hi = estimate_clim(v, CLIM_PERCENTILES, sample=for_clim)
+    lo = max(lo, background_floor(v, sample=for_floor))
+    return lo, (hi if hi > lo else lo + max(1.0, abs(lo)) * 1e-6)
 
 
 def display_limits(stack: Any, *, axis: int = 0) -> tuple[float, float]:

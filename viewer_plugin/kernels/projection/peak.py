@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import partial
 from typing import Any
 
 import numpy as np
@@ -10,10 +11,10 @@ import numpy as np
 from ..._shared.progress import Progress
 from ..._shared.validation import check_number
 from . import _compiled as nb
-from ._common import KERNEL_LOCK, depth_view, index_dtype, initial_values
-from .reduction import fold_chunks, kernel_dtype
+from ._common import depth_view, index_dtype, initial_values
+from .reduction import DepthFold, combine_peak, kernel_dtype, reduce_depth
 
-__all__ = ["PeakProjection", "peak_projection", "fold_peak"]
+__all__ = ["PeakProjection", "peak_projection", "fold_peak", "start_peak"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -42,21 +43,25 @@ class PeakProjection:
     z_step: float
 
 
+def start_peak(shape: tuple, kdtype: np.dtype, n: int) -> tuple[np.ndarray, np.ndarray]:
+    """Fresh (maximum, index) state: nothing seen yet (index -1)."""
+    return initial_values(shape, kdtype), np.full(shape, -1, index_dtype(n))
+
+
+def _update_peak(block: np.ndarray, z0: int, state: tuple) -> None:
+    nb.peak_update(block, z0, *state)
+
+
 def fold_peak(v: Any, progress: Progress) -> tuple[np.ndarray, np.ndarray]:
     """(maximum, index) over the depth-first *v*; index -1 on all-NaN rays.
 
     For integers the index also stays -1 where the ray holds only the
     dtype's minimum (read as 0, as numpy.argmax).
     """
-    vals = initial_values(v.shape[1:], kernel_dtype(v.dtype))
-    idx = np.full(v.shape[1:], -1, index_dtype(v.shape[0]))
-
-    def fold(block: np.ndarray, z0: int, index: tuple) -> None:
-        nb.peak_update(block, z0, vals[index], idx[index])
-
-    with KERNEL_LOCK:
-        fold_chunks(v, fold, progress=progress)
-    return vals, idx
+    kdtype = kernel_dtype(v.dtype)
+    fold = DepthFold(start=partial(start_peak, kdtype=kdtype, n=int(v.shape[0])),
+                     update=_update_peak, combine=combine_peak, dtype=kdtype)
+    return reduce_depth(v, fold, progress)
 
 
 def peak_projection(stack: Any, *, axis: int = 0, z_step: float = 1.0,
@@ -68,13 +73,15 @@ def peak_projection(stack: Any, *, axis: int = 0, z_step: float = 1.0,
     stack : array_like or dask array
         Stack with at least 3 dimensions (e.g. ZYX, TZYX, CZYX), integer,
         boolean or floating point. NaN counts as no signal. Not modified.
+        A dask array is computed as one graph on the active dask scheduler.
     axis : int, optional
         The depth axis (default 0). Other axes are kept in order.
     z_step : float, optional
         Slice spacing in µm (> 0), for ``depth_um``.
     progress : callable, optional
-        ``progress(done, total)`` called between z-chunks; may raise
-        :class:`~viewer_plugin.kernels.Cancelled`.
+        ``progress(done, total)`` as z-chunks (numpy) or groups of blocks
+        (dask) are folded; may raise :class:`~viewer_plugin.kernels.Cancelled`,
+        which stops the computation.
 
     Returns
     -------
