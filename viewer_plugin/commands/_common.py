@@ -128,6 +128,20 @@ def in_cli_words(record: dict[str, Any]) -> dict[str, Any]:
             for key, value in record.items()}
 
 
+def finish_parser(parser: Any, run: Any, *, channel_help: str | None = None,
+                  overwrite_help: str = "replace existing output files") -> None:
+    """The options a computing command ends with, and the function that runs it.
+
+    ``--channel N`` (when *channel_help* says what it does), ``--overwrite``,
+    ``--workers``/``--scheduler`` (see :func:`add_compute_options`).
+    """
+    if channel_help is not None:
+        parser.add_argument("--channel", type=int, default=None, metavar="N", help=channel_help)
+    parser.add_argument("--overwrite", action="store_true", help=overwrite_help)
+    add_compute_options(parser)
+    parser.set_defaults(func=run)
+
+
 def add_compute_options(parser: Any) -> None:
     """``--workers N`` / ``--scheduler ADDRESS``: where a command's dask graphs run."""
     group = parser.add_argument_group(

@@ -21,9 +21,9 @@ from ..jobs.choices import ATTENUATION_CAVEAT, ATTENUATION_MODELS, DEFAULT_MAX_G
 from ._common import (
     CommandError,
     TerminalProgress,
-    add_compute_options,
     check_output_path,
     check_outputs,
+    finish_parser,
     print_notes,
     read_input,
     save_figure,
@@ -53,11 +53,7 @@ def register(sub: Any) -> None:
                         help="depth axis: z, y, x or an index 0-2 of the z-stack (default z)")
     parser.add_argument("--z-step", type=float, default=None, metavar="UM",
                         help="slice spacing along the axis in um (default: the file's voxel size)")
-    parser.add_argument("--channel", type=int, default=None, metavar="N",
-                        help="process only this channel (default: every channel)")
-    parser.add_argument("--overwrite", action="store_true", help="replace existing output files")
-    add_compute_options(parser)
-    parser.set_defaults(func=run)
+    finish_parser(parser, run, channel_help="process only this channel (default: every channel)")
 
 
 def _axis_index(text: str) -> int:

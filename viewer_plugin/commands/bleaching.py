@@ -29,8 +29,8 @@ from ._common import (
     EXIT_OK,
     EXIT_OVER_TOLERANCE,
     TerminalProgress,
-    add_compute_options,
     check_outputs,
+    finish_parser,
     print_notes,
     read_input,
     save_figure,
@@ -79,11 +79,7 @@ def register(sub: Any) -> None:
     parser.add_argument("--reverse", default=None, metavar="SECOND_PASS",
                         help="second pass over the same stack, acquired deepest-first (stored "
                         "surface first): separate bleaching from attenuation")
-    parser.add_argument("--channel", type=int, default=None, metavar="N",
-                        help="channel to check (default 0 when INPUT has several)")
-    parser.add_argument("--overwrite", action="store_true", help="replace existing output files")
-    add_compute_options(parser)
-    parser.set_defaults(func=run)
+    finish_parser(parser, run, channel_help="channel to check (default 0 when INPUT has several)")
 
 
 def parse_tolerance(text: str) -> float:
@@ -159,7 +155,7 @@ def run(args: argparse.Namespace) -> int:
     if report.caveat:
         print(f"caveat: {report.caveat}")
     _print_written(outputs)
-    return VERDICT_EXIT[checked.verdict]
+    return VERDICT_EXIT[checked.report.verdict]
 
 
 def _write_copy(path: Path, checked: Any, label: str, args: argparse.Namespace, *,
@@ -212,4 +208,4 @@ def _run_two_pass(args: argparse.Namespace, stack: Any, tolerance: float,
     print(two.result.summary)
     print(f"caveat: {two.result.caveat}")
     _print_written(outputs)
-    return VERDICT_EXIT[two.verdict]
+    return VERDICT_EXIT[two.result.verdict]

@@ -11,7 +11,7 @@ import argparse
 from pathlib import Path
 from typing import Any
 
-from ._common import OME_ZARR, CommandError, TerminalProgress, add_compute_options, check_output_path
+from ._common import OME_ZARR, CommandError, TerminalProgress, check_output_path, finish_parser
 
 
 def register(sub: Any) -> None:
@@ -28,9 +28,7 @@ def register(sub: Any) -> None:
     parser.add_argument("--ngff", choices=("0.4", "0.5"), default="0.4",
                         help="NGFF version: 0.4 (zarr format 2, read by most tools) or 0.5 "
                              "(zarr format 3)")
-    parser.add_argument("--overwrite", action="store_true", help="replace an existing output")
-    add_compute_options(parser)
-    parser.set_defaults(func=run)
+    finish_parser(parser, run, overwrite_help="replace an existing output")
 
 
 def run(args: argparse.Namespace) -> int:

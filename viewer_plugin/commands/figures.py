@@ -15,11 +15,11 @@ from typing import Any
 
 from ..jobs.choices import DEFAULT_CMAP, DEPTH_CODED
 from ._common import (
+    CommandError,
     EXIT_OK,
     EXIT_USAGE,
-    CommandError,
     TerminalProgress,
-    add_compute_options,
+    finish_parser,
     print_notes,
 )
 
@@ -51,11 +51,9 @@ def register(sub: Any) -> None:
     parser.add_argument("--same-contrast", action="store_true",
                         help="one automatic display range for all figures (the widest of the "
                              "inputs' 0.1-99.9 percentile ranges)")
-    parser.add_argument("--channel", type=int, default=None, metavar="N",
-                        help="channel of multi-channel inputs")
-    parser.add_argument("--overwrite", action="store_true", help="replace existing figures")
-    add_compute_options(parser)
-    parser.set_defaults(func=run)
+    finish_parser(parser, run,
+                  channel_help="channel of multi-channel inputs",
+                  overwrite_help="replace existing figures")
 
 
 def run(args: argparse.Namespace) -> int:

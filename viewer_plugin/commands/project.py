@@ -19,8 +19,8 @@ from ..jobs.choices import DEFAULT_CMAP, DEFAULT_METHOD, DEPTH_CODED, PROJECTION
 from ._common import (
     CommandError,
     TerminalProgress,
-    add_compute_options,
     check_output_path,
+    finish_parser,
     in_cli_words,
     print_notes,
     read_input,
@@ -56,14 +56,10 @@ def register(sub: Any) -> None:
                         help="occlusion: composite from the first (top) or last (bottom) slice")
     parser.add_argument("--z-step", type=float, default=None, metavar="UM",
                         help="slice spacing in um (default: from the file's voxel size)")
-    parser.add_argument("--channel", type=int, default=None, metavar="N",
-                        help="channel index for files with several channels")
     parser.add_argument("--figure", default=None, metavar="FIG",
                         help="also save a figure (.png/.tif/.pdf) with colour bar and scale bar in "
                              "um, plus FIG.json (parameters) and FIG.methods.txt")
-    parser.add_argument("--overwrite", action="store_true", help="replace existing output files")
-    add_compute_options(parser)
-    parser.set_defaults(func=run)
+    finish_parser(parser, run, channel_help="channel index for files with several channels")
 
 
 def _check_options(args: argparse.Namespace) -> None:

@@ -58,12 +58,6 @@ class Checked:
     provenance: dict[str, Any]
 
     @property
-    def verdict(self) -> str:
-        """``"within"``, ``"inconclusive"`` or ``"exceeds"`` (the 95 % interval of the loss
-        against the tolerance)."""
-        return str(self.report.verdict)
-
-    @property
     def exceeds(self) -> bool:
         """Whether the whole 95 % interval of the loss is above the tolerance."""
         return bool(self.report.exceeds_tolerance)
@@ -177,12 +171,6 @@ class TwoPass:
     tolerance: float
     notes: tuple[str, ...]
     provenance: dict[str, Any]
-
-    @property
-    def verdict(self) -> str:
-        """``"within"``, ``"inconclusive"`` or ``"exceeds"``: the 95 % interval of the loss
-        of the forward pass against the tolerance."""
-        return str(self.result.verdict)
 
     @property
     def exceeds(self) -> bool:

@@ -13,6 +13,7 @@ import numpy as np
 from matplotlib.figure import Figure
 
 from ..kernels.attenuation import AttenuationFit
+from ._common import new_figure
 
 __all__ = ["attenuation_figure", "length_text", "truth_text"]
 
@@ -38,12 +39,6 @@ def truth_text(truth: Mapping[str, Any] | None) -> str:
         text += f"; with bleaching, as one stack shows it: {float(effective):.3g} µm"
     return text
 
-
-def _new_figure(figure: Figure | None, size: tuple[float, float]) -> Figure:
-    if figure is None:
-        return Figure(figsize=size, dpi=100, layout="constrained")
-    figure.clear()
-    return figure
 
 
 def attenuation_figure(
@@ -81,7 +76,7 @@ def attenuation_figure(
     matplotlib.figure.Figure
         Two axes: signal above background (top) and gain (bottom), depth in µm.
     """
-    fig = _new_figure(figure, (6.0, 4.6))
+    fig = new_figure(figure, (6.0, 4.6))
     top, bottom = fig.subplots(2, 1, sharex=True, height_ratios=(3, 2))
     depth = fit.depth_um
     ok = np.isfinite(fit.profile) & (fit.profile > 0)

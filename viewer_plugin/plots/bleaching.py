@@ -14,6 +14,7 @@ from matplotlib.figure import Figure
 
 from ..kernels.bleaching import BleachingReport, TwoPassResult
 from ..kernels.bleaching.text import VERDICT_WORDS, format_interval
+from ._common import new_figure
 
 __all__ = ["bleaching_figure", "two_pass_figure", "time_axis"]
 
@@ -36,12 +37,6 @@ def time_axis(report: BleachingReport) -> tuple[np.ndarray, str]:
     return x, "time (s)"
 
 
-def _new_figure(figure: Figure | None, size: tuple[float, float]) -> Figure:
-    if figure is None:
-        return Figure(figsize=size, dpi=100, layout="constrained")
-    figure.clear()
-    return figure
-
 
 def bleaching_figure(
     report: BleachingReport,
@@ -63,7 +58,7 @@ def bleaching_figure(
     -------
     matplotlib.figure.Figure
     """
-    fig = _new_figure(figure, (6.0, 4.0))
+    fig = new_figure(figure, (6.0, 4.0))
     ax = fig.add_subplot(1, 1, 1)
     x, label = time_axis(report)
     first = float(report.model_profile[0]) if report.model_profile.size else 0.0
@@ -120,15 +115,18 @@ def two_pass_figure(
     *,
     truth: dict[str, Any] | None = None,
     figure: Figure | None = None,
+    stacked: bool = False,
 ) -> Figure:
     """Left: log ratio of the two passes against the extra exposures (slope ln(1 - k),
     intercept ln of the pass ratio). Right: the equal-exposure profile √(forward·reverse)
     against depth (slope -1/ℓ).
 
-    *truth* (demo metadata) adds the true rate and length as dotted lines.
+    *truth* (demo metadata) adds the true rate and length as dotted lines. With
+    *stacked* the two panels are drawn one above the other (for a narrow dock).
     """
-    fig = _new_figure(figure, (9.0, 4.0))
-    left, right = fig.add_subplot(1, 2, 1), fig.add_subplot(1, 2, 2)
+    fig = new_figure(figure, (5.0, 7.0) if stacked else (9.0, 4.0))
+    shape = (2, 1) if stacked else (1, 2)
+    left, right = fig.add_subplot(*shape, 1), fig.add_subplot(*shape, 2)
     x, y = result.exposures, result.log_ratio
     left.plot(x, y, "o", ms=4, color=MEASURED, label="slices")
     grid = np.array([0.0, float(x.max())])

@@ -240,6 +240,7 @@ class StackDock(Container):
             return
         time = self.axis_letter() == "T"
         self.z_step.label = "Interval (s)" if time else "z-step (\u00b5m)"
+        self.override_z.text = "Override interval" if time else "Override z-step"
         step = float(layer.scale[int(axis)])
         if not self.override_z.value:
             with self.z_step.changed.blocked():

@@ -120,7 +120,7 @@ class BleachingWidget(StackDock):
         self.figure = Figure(figsize=(5.0, 3.4), dpi=90, layout="constrained")
         self.canvas = FigureCanvasQTAgg(self.figure)
         self.canvas.setMinimumHeight(260)
-        self.canvas.setMinimumWidth(560)  # two panels side by side stay readable
+        self.canvas.setMinimumWidth(380)  # the two-pass panels are stacked, not side by side
         self.native.layout().addWidget(self.canvas)
 
     def _refresh_hook(self) -> None:
@@ -208,6 +208,14 @@ class BleachingWidget(StackDock):
         return BleachingOptions(axis_kind=kind or self.axis_kind.value, interval=self.step_override(),
                                 tolerance=float(self.tolerance.value) / 100)
 
+    def _inputs(self) -> tuple[Any, Any, str, Any] | None:
+        """(layer, selection, note, options), or None after a notification."""
+        try:
+            return (*self._selection(), self._options())
+        except ValueError as exc:
+            self.notify_error(exc)
+            return None
+
     # ------------------------------------------------------------ actions
     def check(self, *_: Any, start_thread: bool = True) -> Any:
         """Run the check (or the two-pass estimate); returns the napari worker."""
@@ -215,12 +223,10 @@ class BleachingWidget(StackDock):
             return self.check_two_pass(start_thread=start_thread)
         from ..jobs import check_bleaching
 
-        try:
-            layer, selection, note = self._selection()
-            options = self._options()
-        except ValueError as exc:
-            self.notify_error(exc)
+        inputs = self._inputs()
+        if inputs is None:
             return None
+        layer, selection, note, options = inputs
 
         def job(progress: Any) -> Any:
             return check_bleaching(selection, options, progress=progress)
@@ -239,12 +245,10 @@ class BleachingWidget(StackDock):
         """Add a bleaching-corrected copy of the picked layer; returns the napari worker."""
         from ..jobs import check_bleaching, correct_checked
 
-        try:
-            layer, selection, note = self._selection()
-            options = self._options()
-        except ValueError as exc:
-            self.notify_error(exc)
+        inputs = self._inputs()
+        if inputs is None:
             return None
+        layer, selection, note, options = inputs
         if note:
             self.notify_error(ValueError("Correct: expected a series along time or a single "
                                          "z-stack, got one time point of a series; check it "
@@ -291,14 +295,16 @@ class BleachingWidget(StackDock):
             from ..plots.bleaching import two_pass_figure
 
             self.two_pass = two.result
-            self._show_verdict(two.verdict)
+            self._show_verdict(two.result.verdict)
             text = two.result.summary
             if "bleach_rate_per_exposure" in truth:
                 text += (f" Demo truth: {truth['bleach_rate_per_exposure'] * 100:.3g} % per "
                          f"exposure, {truth.get('attenuation_length_um', math.nan):.3g} \u00b5m.")
             self.verdict.value = text
             self.caveat.value = two.result.caveat
-            two_pass_figure(two.result, truth=truth, figure=self.figure)
+            self.caveat.visible = True
+            two_pass_figure(two.result, truth=truth, figure=self.figure, stacked=True)
+            self.canvas.setMinimumHeight(520)
             self.canvas.draw_idle()
 
         return self.run_job(job, show, start_thread=start_thread)
@@ -315,6 +321,7 @@ class BleachingWidget(StackDock):
             text += f" Demo truth: {truth_rate * 100:.3g} % per frame."
         self.verdict.value = text
         self.caveat.value = report.caveat
+        self.caveat.visible = bool(report.caveat)  # a time series has none: no empty box
         bleaching_figure(report, truth_rate=truth_rate, figure=self.figure)
         self.canvas.draw_idle()
 
