@@ -281,6 +281,19 @@ def test_series_views_share_one_depth_range_and_display_range():
         np.testing.assert_allclose(views.render(t), expected, atol=1e-7)
 
 
+def test_series_views_of_a_dask_series_match_numpy():
+    da = pytest.importorskip("dask.array")
+    rng = np.random.default_rng(9)
+    series = (100 + rng.poisson(5, (3, 5, 12, 10))).astype(np.uint16)
+    series[:, 2, 3:9, 4] += 400
+    lazy = da.from_array(series, chunks=(1, 2, 12, 10))
+    for method in ("depth-colour", "occlusion", "peak"):
+        ours, reference = (series_views(s, z_step=1.5, method=method) for s in (lazy, series))
+        assert ours.clim == pytest.approx(reference.clim)
+        for t in range(3):
+            np.testing.assert_allclose(ours.render(t), reference.render(t), atol=1e-6)
+
+
 @pytest.mark.parametrize("call, fragment", [
     (lambda s: turning_views(turn_volume(s, voxel_um=(1, 1, 1)), frames=1), "frames"),
     (lambda s: turning_views(turn_volume(s, voxel_um=(1, 1, 1)), method="peak", cmap="viridis"),
