@@ -20,7 +20,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from typing import Any, Iterator, Optional
+from typing import Any, Iterator, NamedTuple, Optional
 
 import numpy as np
 from scipy import ndimage
@@ -29,6 +29,7 @@ from ..._shared.progress import Progress, report_progress
 from ..._shared.validation import (
     check_choice,
     check_int,
+    check_interval,
     check_number,
     check_stack,
     depth_first,
@@ -38,7 +39,7 @@ from ..._shared.validation import (
 from ..primitives.chunks import DEFAULT_CHUNK_BYTES, plane_nbytes
 from .colour import resolve_lut
 from .depth_colour import depth_coded_projection
-from .limits import display_limits, resolve_clim
+from .limits import display_limits
 from .occlusion import DEFAULT_OPTICAL_DEPTH, occlusion_projection
 from .peak import peak_projection
 
@@ -357,6 +358,17 @@ def turned_view(volume: TurnVolume, angle_deg: float) -> np.ndarray:
     return out
 
 
+class _Shared(NamedTuple):
+    """The settings every frame of a :class:`Views` shares."""
+
+    method: str
+    step_um: float
+    clim: tuple[float, float]
+    density: Optional[float]
+    depth_range: tuple[float, float]
+    lut: Optional[np.ndarray]
+
+
 class Views:
     """A sequence of frames rendered with one method and shared settings.
 
@@ -390,13 +402,12 @@ class Views:
         The resampled stack of turning views (None for a series).
     """
 
-    def __init__(self, method: str, count: int, shape: tuple[int, int], step_um: float,
-                 clim: tuple[float, float], density: Optional[float],
-                 depth_range: Optional[tuple[float, float]], lut: Optional[np.ndarray],
-                 *, volume: Optional[TurnVolume] = None, series: Any = None,
+    def __init__(self, shared: _Shared, count: int, shape: tuple[int, int], *,
+                 volume: Optional[TurnVolume] = None, series: Any = None,
                  angles_deg: Optional[tuple[float, ...]] = None, axis: int = 0) -> None:
-        self.method, self.count, self.shape, self.step_um = method, count, shape, step_um
-        self.clim, self.density, self.depth_range, self.lut = clim, density, depth_range, lut
+        self.method, self.step_um, self.clim = shared.method, shared.step_um, shared.clim
+        self.density, self.depth_range, self.lut = shared.density, shared.depth_range, shared.lut
+        self.count, self.shape = count, shape
         self.angles_deg, self.volume = angles_deg, volume
         self._series, self._axis = series, axis
         self._buffer: Optional[np.ndarray] = None
@@ -456,8 +467,15 @@ class Views:
         return np.repeat(grey[..., None], 3, axis=-1)
 
 
-def _settings(method: str, cmap: Any, density: Optional[float]) -> tuple[str, Any, Optional[float]]:
-    """Checked method, colour table (None: grey) and density."""
+def _shared(options: tuple, sample: Any, axis: int, step_um: float, thickness_um: float,
+            deepest_um: float) -> _Shared:
+    """The shared settings from (method, cmap, clim, density), checked; defaults from *sample*.
+
+    Display limits default to the percentiles of *sample* (depth along
+    *axis*), the occlusion density to 10 / *thickness_um*; colours run over
+    depths 0 to *deepest_um*.
+    """
+    method, cmap, clim, density = options
     method = check_choice(method, name="method", choices=TURN_METHODS)
     if method == "peak" and cmap is not None:
         fail("cmap", "no colour map for method 'peak' (grey frames)", cmap)
@@ -466,7 +484,11 @@ def _settings(method: str, cmap: Any, density: Optional[float]) -> tuple[str, An
     lut = None if cmap is None else resolve_lut(cmap)
     if density is not None:
         density = check_number(density, name="density", low=0.0)
-    return method, lut, density
+    elif method == "occlusion":
+        density = DEFAULT_OPTICAL_DEPTH / thickness_um
+    lo_hi = check_interval(clim, name="clim") or display_limits(sample, axis=axis)
+    return _Shared(method, step_um, lo_hi, density if method == "occlusion" else None,
+                   (0.0, deepest_um), lut)
 
 
 def turning_views(volume: TurnVolume, *, frames: int = 36, method: str = "occlusion",
@@ -525,16 +547,10 @@ def turning_views(volume: TurnVolume, *, frames: int = 36, method: str = "occlus
     ((0.0, 90.0, 180.0, 270.0), (6, 8, 3))
     """
     frames = check_int(frames, name="frames", low=2)
-    method, lut, density = _settings(method, cmap, density)
-    lo_hi = resolve_clim(clim, np.moveaxis(volume.data, 1, 0)) if clim is not None \
-        else display_limits(volume.data, axis=1)
-    if method == "occlusion" and density is None:
-        density = DEFAULT_OPTICAL_DEPTH / volume.depth_um
-    depth_range = (0.0, (volume.shape[0] - 1) * volume.step_um)
+    shared = _shared((method, cmap, clim, density), volume.data, 1, volume.step_um,
+                     volume.depth_um, (volume.shape[0] - 1) * volume.step_um)
     angles = tuple(360.0 * k / frames for k in range(frames))
-    return Views(method, frames, volume.shape[1:], volume.step_um, lo_hi,
-                 density if method == "occlusion" else None, depth_range, lut,
-                 volume=volume, angles_deg=angles)
+    return Views(shared, frames, volume.shape[1:], volume=volume, angles_deg=angles)
 
 
 def series_views(stack: Any, *, z_step: float = 1.0, method: str = "depth-colour",
@@ -587,14 +603,8 @@ def series_views(stack: Any, *, z_step: float = 1.0, method: str = "depth-colour
         fail("stack", "a series of z-stacks: 4 dimensions, frames along axis 0 and depth along "
              "another", f"<an array of shape {tuple(stack.shape)} with depth axis {axis}>")
     z_step = check_number(z_step, name="z_step", low=0.0, low_open=True)
-    method, lut, density = _settings(method, cmap, density)
     n = int(stack.shape[axis])
-    lo_hi = resolve_clim(clim, depth_first(stack, axis)) if clim is not None \
-        else display_limits(stack, axis=axis)
-    if method == "occlusion" and density is None:
-        density = DEFAULT_OPTICAL_DEPTH / (n * z_step)
-    depth_range = (0.0, (n - 1) * z_step if n > 1 else z_step)
+    shared = _shared((method, cmap, clim, density), stack, axis, z_step, n * z_step,
+                     (n - 1) * z_step if n > 1 else z_step)
     rows_cols = tuple(int(k) for i, k in enumerate(stack.shape) if i not in (0, axis))
-    return Views(method, int(stack.shape[0]), rows_cols, z_step, lo_hi,
-                 density if method == "occlusion" else None, depth_range, lut,
-                 series=stack, axis=axis - 1)
+    return Views(shared, int(stack.shape[0]), rows_cols, series=stack, axis=axis - 1)
