@@ -20,7 +20,7 @@ from . import __version__
 from .commands._common import EXIT_FAILURE, EXIT_USAGE, CommandError, compute_scheduler
 
 #: Sub-command modules in :mod:`viewer_plugin.commands`, in help order.
-SUBCOMMANDS = ("view", "demo", "project", "figures", "attenuation", "bleaching", "convert")
+SUBCOMMANDS = ("view", "demo", "project", "figures", "movie", "attenuation", "bleaching", "convert")
 
 
 class _Parser(argparse.ArgumentParser):
@@ -35,8 +35,8 @@ def build_parser() -> argparse.ArgumentParser:
         prog="stackdepth",
         description=(
             "Depth analysis of fluorescence microscopy z-stacks: depth-coded projections, "
-            "depth attenuation and photobleaching checks. A research tool, not for clinical "
-            "or diagnostic decisions."
+            "turning movies, depth attenuation and photobleaching checks. A research tool, not "
+            "for clinical or diagnostic decisions."
         ),
         epilog="Exit status: 0 ok, 2 bad input, 3 outside tolerance (bleaching), 4 inconclusive "
                "against the tolerance (bleaching), 1 internal error.",

@@ -11,7 +11,9 @@ unless asked:
 * ``<figure>.methods.txt``: a methods sentence to adapt for a paper.
 
 :func:`colour_bar_image` draws the same colour bar as a small RGBA array for
-the dock widgets, so the screen and the paper show identical ticks.
+the dock widgets, so the screen and the paper show identical ticks;
+:func:`draw_scale_bar` and :func:`draw_colour_bar` draw the scale bar and the
+depth colour bar into any matplotlib axes (the movie frames use them too).
 """
 
 from __future__ import annotations
@@ -34,6 +36,8 @@ __all__ = [
     "LegendParts",
     "build_depth_figure",
     "colour_bar_image",
+    "draw_colour_bar",
+    "draw_scale_bar",
     "export_depth_figure",
     "legend_parts",
     "methods_sentence",
@@ -254,7 +258,35 @@ def _check_targets(path: Path, *, overwrite: bool) -> tuple[Path, Path, Path, st
     return path, sidecar, methods, FIGURE_FORMATS[ext]
 
 
-def _draw_scale_bar(ax: Any, width_um: float, height_um: float, length_um: float) -> None:
+def draw_scale_bar(ax: Any, width_um: float, height_um: float, length_um: float) -> None:
+    """Draw a white scale bar with its length in µm at the lower right of an image axes.
+
+    Used by the figures here and by the frames of movies.
+
+    Parameters
+    ----------
+    ax : matplotlib.axes.Axes
+        Axes showing the image in µm: x from 0 to *width_um*, y from
+        *height_um* (bottom) to 0 (top), as ``imshow(..., extent=(0, w, h, 0))``.
+    width_um, height_um : float
+        Size of the image in µm.
+    length_um : float
+        Length of the bar in µm (e.g. :func:`nice_length` of the width).
+
+    Returns
+    -------
+    None
+
+    Examples
+    --------
+    >>> from matplotlib.figure import Figure
+    >>> ax = Figure().add_subplot()
+    >>> ax.set_xlim(0, 100); ax.set_ylim(50, 0)  # doctest: +ELLIPSIS
+    (...)
+    >>> draw_scale_bar(ax, 100.0, 50.0, nice_length(100.0))
+    >>> ax.texts[0].get_text()
+    '20 µm'
+    """
     from matplotlib.patches import Rectangle
 
     margin = 0.05 * width_um
@@ -272,8 +304,38 @@ def nice_label(value: float) -> str:
     return f"{value:g}"
 
 
-def _draw_colour_bar(ax: Any, parts: LegendParts, *, vertical: bool, colour: str = "black") -> None:
-    """Draw *parts* into *ax*; depth grows downward (vertical) or rightward."""
+def draw_colour_bar(ax: Any, parts: LegendParts, *, vertical: bool, colour: str = "black") -> None:
+    """Draw a depth colour bar with ticks in µm into *ax*.
+
+    Used by the figures and dock legends here and by the depth key of movies.
+
+    Parameters
+    ----------
+    ax : matplotlib.axes.Axes
+        The (empty) axes of the bar.
+    parts : LegendParts
+        From :func:`legend_parts`.
+    vertical : bool
+        Depth grows downward (vertical, labels on the right) or rightward
+        (horizontal, labels below).
+    colour : str
+        Colour of the ticks, labels and frame.
+
+    Returns
+    -------
+    None
+        The axis label reads "Depth (µm)"; set another with ``ax.set_xlabel``
+        (horizontal) or ``ax.set_ylabel`` (vertical).
+
+    Examples
+    --------
+    >>> from matplotlib.figure import Figure
+    >>> from viewer_plugin.kernels import depth_legend
+    >>> ax = Figure().add_subplot()
+    >>> draw_colour_bar(ax, legend_parts(depth_legend((0.0, 30.0))), vertical=False)
+    >>> [t.get_text() for t in ax.get_xticklabels()]
+    ['0', '10', '20', '30']
+    """
     d0, d1 = parts.depth_range
     table = parts.image
     if vertical:
@@ -359,10 +421,10 @@ def _build_figure(result: Any, *, pixel_size_um: Any, scale_bar_um: float | None
     ax.imshow(rgb, extent=(0, width_um, height_um, 0), interpolation="nearest")
     ax.set_axis_off()
     ax.set_anchor("W")
-    _draw_scale_bar(ax, width_um, height_um, scale_bar_um)
+    draw_scale_bar(ax, width_um, height_um, scale_bar_um)
     left = image_w / (image_w + 1.3) + 0.03
     cax = fig.add_axes((left, 0.15, 0.045, 0.7))
-    _draw_colour_bar(cax, parts, vertical=True)
+    draw_colour_bar(cax, parts, vertical=True)
     if title:
         fig.suptitle(title, fontsize=10, y=0.985)
     return fig, parts, pixel, scale_bar_um
@@ -498,7 +560,7 @@ def colour_bar_image(legend: Any, *, width_px: int = 260, height_px: int = 54,
     fig.patch.set_alpha(0.0)
     canvas = FigureCanvasAgg(fig)
     ax = fig.add_axes((0.05, 0.62, 0.9, 0.33))
-    _draw_colour_bar(ax, parts, vertical=False, colour="#e0e0e0" if dark else "black")
+    draw_colour_bar(ax, parts, vertical=False, colour="#e0e0e0" if dark else "black")
     ax.xaxis.label.set_fontsize(8)
     ax.xaxis.labelpad = 1
     canvas.draw()

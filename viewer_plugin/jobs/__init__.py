@@ -9,6 +9,8 @@ the choice lists, defaults and caution texts they show are in
 :mod:`.choices`.
 
 * :func:`project_stack`, :func:`write_figure` -- projections and figures;
+* :func:`save_movie` (:func:`make_movie` + :func:`write_movie`) -- a turning
+  movie, or one top view per time point, as MP4 or GIF;
 * :func:`measure_attenuation`, :func:`correct_measured` -- depth attenuation;
 * :func:`check_bleaching`, :func:`correct_checked`, :func:`equalise_checked`,
   :func:`separate_passes` -- bleaching.
@@ -26,6 +28,16 @@ from .bleaching import (
     separate_passes,
 )
 from .figure import figure_plane, write_figure
+from .movie import (
+    Movie,
+    MovieOptions,
+    SavedMovie,
+    check_movie_options,
+    make_movie,
+    movie_path,
+    save_movie,
+    write_movie,
+)
 from .projection import ProjectionOptions, Projected, SideView, project_stack
 from .stack import Corrected, Geometry, Selection, geometry_of, select
 
@@ -36,22 +48,30 @@ __all__ = [
     "Corrected",
     "Geometry",
     "Measured",
+    "Movie",
+    "MovieOptions",
     "Projected",
     "ProjectionOptions",
     "Selection",
+    "SavedMovie",
     "SideView",
     "TwoPass",
     "attenuation_record",
     "bleaching_record",
     "check_bleaching",
+    "check_movie_options",
     "correct_checked",
     "correct_measured",
     "equalise_checked",
     "figure_plane",
     "geometry_of",
+    "make_movie",
     "measure_attenuation",
+    "movie_path",
     "project_stack",
+    "save_movie",
     "select",
     "separate_passes",
     "write_figure",
+    "write_movie",
 ]

@@ -12,8 +12,8 @@ from ..kernels.attenuation import CAUTION as ATTENUATION_CAVEAT
 from ..kernels.attenuation import MODELS as ATTENUATION_MODELS
 from ..kernels.bleaching import RESCALE
 from ..kernels.bleaching.text import DEPTH_CAVEAT, TWO_PASS_CAVEAT, VERDICT_WORDS, VERDICTS
+from ..kernels.projection import MAX_SIDE, TURN_AXES, TURN_METHODS, VIEWS
 from ..kernels.projection import METHODS as DEPTH_CODED
-from ..kernels.projection import VIEWS
 
 __all__ = [
     "ATTENUATION_CAVEAT",
@@ -22,20 +22,31 @@ __all__ = [
     "BLEACHING_CAVEAT",
     "COLOUR_MAPS",
     "DEFAULT_CMAP",
+    "DEFAULT_FPS",
+    "DEFAULT_FRAMES",
     "DEFAULT_MAX_GAIN",
     "DEFAULT_METHOD",
+    "DEFAULT_MOVIE_METHOD",
     "DEFAULT_TOLERANCE",
     "DEPTH_CAVEAT",
     "DEPTH_CODED",
     "EQUALISE_NOTE",
     "METHOD_LABELS",
     "METHOD_WORDS",
+    "MAX_SIDE",
+    "MOVIE_METHODS",
+    "MOVIE_METHOD_LABELS",
+    "MOVIE_NOTE",
+    "MOVIE_OVER",
+    "MOVIE_SUFFIXES",
     "OCCLUSION_NOTE",
     "PROJECTION_CAVEAT",
     "PROJECTION_METHODS",
     "RESCALE",
     "RESCALE_LABELS",
     "TOLERANCE_NOTE",
+    "TURN_AXES",
+    "TURN_LABELS",
     "TWO_PASS_CAVEAT",
     "TWO_PASS_HELP",
     "VERDICTS",
@@ -81,6 +92,27 @@ PROJECTION_CAVEAT = ("Colour = depth below the first slice; brightness = display
                      "relative and not calibrated.")
 OCCLUSION_NOTE = ("A rendering for looking, not for measuring: its brightness is not an "
                   "intensity.")
+
+# --- movies --------------------------------------------------------------------------------
+
+#: How the frames of a movie are rendered (the kernels' names).
+MOVIE_METHODS = TURN_METHODS
+MOVIE_METHOD_LABELS = {
+    "occlusion": "occlusion: nearer structures partly hide deeper ones",
+    "peak": "peak: maximum-intensity projection, grey",
+    "depth-colour": "depth colour: colour = depth of the strongest voxel from the viewer",
+}
+#: What a movie runs over: views from angles through 360°, or the time points of a series.
+MOVIE_OVER = ("angle", "t")
+#: The method when none is given, per MOVIE_OVER entry.
+DEFAULT_MOVIE_METHOD = {"angle": "occlusion", "t": "depth-colour"}
+#: Movie files: suffix -> format.
+MOVIE_SUFFIXES = {".mp4": "mp4", ".gif": "gif"}
+DEFAULT_FRAMES = 36
+DEFAULT_FPS = 12.0
+TURN_LABELS = {"y": "y (the image's vertical axis)", "x": "x (the image's horizontal axis)"}
+MOVIE_NOTE = ("A rendering for showing, not for measuring: brightness is display contrast, not "
+              "a calibrated intensity.")
 
 # --- attenuation ---------------------------------------------------------------------------
 

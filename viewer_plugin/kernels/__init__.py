@@ -1,7 +1,7 @@
 """Numerical kernels of stackdepth, one subpackage per feature.
 
 * :mod:`.projection` -- peak, depth-coded and occlusion projections, the
-  depth legend;
+  depth legend, turning views (the stack seen from angles about one axis);
 * :mod:`.attenuation` -- depth attenuation estimate and correction;
 * :mod:`.bleaching` -- bleaching check, correction and two-pass separation;
 * :mod:`.primitives` -- what the features share, written once: background
@@ -31,12 +31,18 @@ from .projection import (
     DepthCodedProjection,
     DepthLegend,
     PeakProjection,
+    TurnVolume,
+    Views,
     depth_coded_projection,
     depth_colours,
     depth_legend,
     display_limits,
     occlusion_projection,
     peak_projection,
+    series_views,
+    turn_volume,
+    turned_view,
+    turning_views,
     warm_up,
 )
 
@@ -50,7 +56,9 @@ __all__ = [
     "DepthLegend",
     "ParameterError",
     "PeakProjection",
+    "TurnVolume",
     "TwoPassResult",
+    "Views",
     "background_level",
     "blended_projection",
     "brightest_point",
@@ -66,6 +74,10 @@ __all__ = [
     "occlusion_projection",
     "peak_projection",
     "separate_bleaching",
+    "series_views",
     "slice_background",
+    "turn_volume",
+    "turned_view",
+    "turning_views",
     "warm_up",
 ]

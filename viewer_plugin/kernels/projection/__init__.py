@@ -8,7 +8,11 @@
   where structures in front partly hide those behind them;
 * :func:`depth_legend` -- the colour bar of a depth-coded image;
 * :func:`depth_colours`, :func:`display_limits` -- the per-slice colours and
-  default display limits the projections use.
+  default display limits the projections use;
+* :func:`turn_volume`, :func:`turned_view`, :func:`turning_views`,
+  :func:`series_views` -- views from angles about one axis (the stack
+  resampled to cubic voxels) and top views of a series, rendered by the
+  projections above with one display range for all frames.
 
 Every projection is a chunk -> combine -> aggregate reduction over depth
 (:mod:`.reduction`), its per-pixel state folded by compiled loops
@@ -40,15 +44,31 @@ from .limits import CLIM_PERCENTILES, display_limits
 from .occlusion import DEFAULT_OPTICAL_DEPTH, VIEWS, default_density, occlusion_projection
 from .peak import PeakProjection, peak_projection
 from .reduction import combine_peak
+from .turn import (
+    MAX_SIDE,
+    TURN_AXES,
+    TURN_METHODS,
+    TurnVolume,
+    Views,
+    series_views,
+    turn_volume,
+    turned_view,
+    turning_views,
+)
 
 __all__ = [
     "CLIM_PERCENTILES",
     "DEFAULT_OPTICAL_DEPTH",
+    "MAX_SIDE",
     "METHODS",
+    "TURN_AXES",
+    "TURN_METHODS",
     "VIEWS",
     "DepthCodedProjection",
     "DepthLegend",
     "PeakProjection",
+    "TurnVolume",
+    "Views",
     "default_density",
     "depth_coded_projection",
     "depth_colours",
@@ -56,6 +76,10 @@ __all__ = [
     "display_limits",
     "occlusion_projection",
     "peak_projection",
+    "series_views",
+    "turn_volume",
+    "turned_view",
+    "turning_views",
     "warm_up",
 ]
 
