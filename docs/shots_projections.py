@@ -47,9 +47,9 @@ def main() -> int:
     from viewer_plugin.kernels.projection import warm_up
     from viewer_plugin.samples import demo_layer
     from viewer_plugin.widgets.projection import (
+        DepthColourWidget,
         OcclusionWidget,
         PeakDepthWidget,
-        DepthColourWidget,
     )
 
     IMAGES.mkdir(exist_ok=True)

@@ -11,9 +11,9 @@ import json
 import numpy as np
 import pytest
 
-from viewer_plugin.cli import main
 from tests.cli._console import assert_one_line_error
 from tests.cli._console import run_cli as _run
+from viewer_plugin.cli import main
 from viewer_plugin.demo import fibre_slab
 from viewer_plugin.io import read_stack, write_ome_tiff
 

@@ -4,9 +4,9 @@ from __future__ import annotations
 
 import pytest
 
+from tests.cli._console import assert_one_line_error, run_cli
 from viewer_plugin import __version__
 from viewer_plugin.cli import main
-from tests.cli._console import assert_one_line_error, run_cli
 from viewer_plugin.io import read_stack
 
 

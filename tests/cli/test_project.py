@@ -11,8 +11,8 @@ import json
 import numpy as np
 import pytest
 
-from viewer_plugin.cli import main
 from tests.cli._console import assert_one_line_error, run_cli
+from viewer_plugin.cli import main
 from viewer_plugin.io import read_stack, write_ome_tiff
 
 

@@ -22,9 +22,17 @@ import tifffile
 
 from viewer_plugin._shared.progress import Cancelled
 from viewer_plugin._shared.validation import ParameterError
-from viewer_plugin.io import (StackReadError, convert_to_ome_zarr, read_ome_zarr,
-                              read_ome_zarr_levels, read_stack, write_ome_tiff, write_ome_zarr)
-from viewer_plugin.io import _zarrstore, omezarr_write
+from viewer_plugin.io import (
+    StackReadError,
+    _zarrstore,
+    convert_to_ome_zarr,
+    omezarr_write,
+    read_ome_zarr,
+    read_ome_zarr_levels,
+    read_stack,
+    write_ome_tiff,
+    write_ome_zarr,
+)
 
 VERSIONS = ["0.4", "0.5"]
 

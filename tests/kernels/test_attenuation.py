@@ -18,7 +18,12 @@ from scipy.optimize import curve_fit
 from scipy.stats import t as student_t
 from skimage.exposure import match_histograms
 
-from viewer_plugin.kernels import Cancelled, ParameterError, correct_attenuation, estimate_attenuation
+from viewer_plugin.kernels import (
+    Cancelled,
+    ParameterError,
+    correct_attenuation,
+    estimate_attenuation,
+)
 from viewer_plugin.kernels.attenuation import AttenuationFit, AttenuationWarning
 
 OFFSET = 100.0

@@ -13,7 +13,11 @@ import pytest
 from scipy.stats import sigmaclip
 
 from viewer_plugin.kernels import ParameterError, background_level, slice_background
-from viewer_plugin.kernels.primitives.background import clipped_rows, clipped_stats, frames_background
+from viewer_plugin.kernels.primitives.background import (
+    clipped_rows,
+    clipped_stats,
+    frames_background,
+)
 
 
 def poisson_background(mu=3.0, offset=100.0, shape=(6, 128, 128), seed=0):

@@ -22,7 +22,7 @@ import pytest
 
 from viewer_plugin.kernels import Cancelled, ParameterError
 from viewer_plugin.kernels import projection as P
-from viewer_plugin.kernels.projection import colour, limits, reduction
+from viewer_plugin.kernels.projection import limits, reduction
 
 DTYPES = [np.uint8, np.uint16, np.int16, np.float32, np.float64]
 REALDATA = Path(__file__).resolve().parents[2].parent / "shared" / "realdata"

@@ -25,8 +25,8 @@ def _run(qtbot, widget, action):
 
 @pytest.fixture
 def demo_viewer(make_napari_viewer):
-    from viewer_plugin.samples import demo_layer
     from viewer_plugin.demo import fibre_slab
+    from viewer_plugin.samples import demo_layer
 
     viewer = make_napari_viewer(show=True)
     data, kwargs, _ = demo_layer(fibre_slab(seed=0, shape=(40, 128, 128)))
@@ -96,8 +96,9 @@ def test_mask_from_shapes_and_bad_input(demo_viewer, qtbot, errors):
 
 
 def test_cancel_stops_the_fit(demo_viewer, qtbot, monkeypatch):
-    from viewer_plugin.widgets.attenuation import AttenuationWidget
     import napari.utils.notifications as notes
+
+    from viewer_plugin.widgets.attenuation import AttenuationWidget
 
     infos: list[str] = []
     monkeypatch.setattr(notes, "show_info", infos.append)

@@ -320,7 +320,8 @@ def test_demo_fibre_slab_depth_colour(make_napari_viewer, qtbot):
 
 def test_kernel_error_becomes_notification(make_napari_viewer, qtbot, errors, monkeypatch):
     """A ParameterError raised inside the kernel (worker thread) is a notification, no layer."""
-    from viewer_plugin.kernels import ParameterError, projection as projections
+    from viewer_plugin.kernels import ParameterError
+    from viewer_plugin.kernels import projection as projections
     from viewer_plugin.widgets.projection import DepthColourWidget
 
     def broken(*args, **kwargs):

@@ -25,9 +25,9 @@ from typing import Any
 from .._shared.jsonio import write_json
 from ..jobs.choices import BLEACHING_CAVEAT, EQUALISE_NOTE, RESCALE, TOLERANCE_NOTE
 from ._common import (
-    CommandError,
     EXIT_OK,
     EXIT_OVER_TOLERANCE,
+    CommandError,
     TerminalProgress,
     check_outputs,
     finish_parser,

@@ -15,9 +15,9 @@ from typing import Any
 
 from ..jobs.choices import DEFAULT_CMAP, DEPTH_CODED
 from ._common import (
-    CommandError,
     EXIT_OK,
     EXIT_USAGE,
+    CommandError,
     TerminalProgress,
     finish_parser,
     print_notes,

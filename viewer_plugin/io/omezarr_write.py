@@ -15,7 +15,6 @@ renamed into place at the end, so an error or a cancel leaves no target.
 from __future__ import annotations
 
 import contextlib
-import math
 import os
 import warnings
 from dataclasses import dataclass
@@ -28,8 +27,8 @@ from .._shared.jsonio import to_jsonable
 from .._shared.progress import Progress, report_progress
 from .._shared.stack import Stack
 from .._shared.validation import check_choice, check_int, check_number, check_stack, fail, is_dask
-from .omezarr import ATTRIBUTE
 from ._zarrstore import ChunkReader, atomic_folder, block_mean
+from .omezarr import ATTRIBUTE
 
 __all__ = ["write_ome_zarr", "convert_to_ome_zarr", "default_chunks", "BATCH_BYTES"]
 

@@ -16,7 +16,13 @@ the choice lists, defaults and caution texts they show are in
   :func:`separate_passes` -- bleaching.
 """
 
-from .attenuation import AttenuationOptions, Measured, attenuation_record, correct_measured, measure_attenuation
+from .attenuation import (
+    AttenuationOptions,
+    Measured,
+    attenuation_record,
+    correct_measured,
+    measure_attenuation,
+)
 from .bleaching import (
     BleachingOptions,
     Checked,
@@ -38,7 +44,7 @@ from .movie import (
     save_movie,
     write_movie,
 )
-from .projection import ProjectionOptions, Projected, SideView, project_stack
+from .projection import Projected, ProjectionOptions, SideView, project_stack
 from .stack import Corrected, Geometry, Selection, geometry_of, select
 
 __all__ = [

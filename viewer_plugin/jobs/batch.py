@@ -20,7 +20,7 @@ from .._shared.progress import Cancelled, Progress, report_progress, sub_progres
 from .._shared.validation import fail
 from .figure import FIGURE_SUFFIXES
 from .projection import ProjectionOptions, project_stack
-from .stack import Selection, axis_step, select
+from .stack import axis_step, select
 
 __all__ = ["BatchRow", "SUMMARY_COLUMNS", "find_inputs", "make_figures", "planned_outputs",
            "write_summary"]

@@ -8,7 +8,13 @@ from typing import Any
 
 from .._shared.progress import Progress
 from .._shared.validation import check_choice, check_number, fail
-from .choices import BLEACHING_CAVEAT, DEFAULT_TOLERANCE, EQUALISE_NOTE, TOLERANCE_NOTE, VERDICT_RULE
+from .choices import (
+    BLEACHING_CAVEAT,
+    DEFAULT_TOLERANCE,
+    EQUALISE_NOTE,
+    TOLERANCE_NOTE,
+    VERDICT_RULE,
+)
 from .provenance import provenance
 from .stack import Corrected, Selection, axis_step, geometry_of, select
 

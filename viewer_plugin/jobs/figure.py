@@ -9,8 +9,8 @@ from typing import Any, Sequence
 import numpy as np
 
 from .._shared.validation import fail
-from .choices import DEPTH_CODED
 from ..figures import FIGURE_FORMATS
+from .choices import DEPTH_CODED
 from .projection import Projected
 
 #: File suffixes a figure can be written as.

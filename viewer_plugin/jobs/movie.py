@@ -38,9 +38,8 @@ from .choices import (
     MOVIE_SUFFIXES,
     TURN_AXES,
 )
-from .projection import _check_some_finite, _depth_axis
 from .provenance import provenance
-from .stack import Selection, axis_step, describe_voxel
+from .stack import Selection, axis_step, check_some_finite, depth_axis_of, describe_voxel
 
 __all__ = ["Movie", "MovieOptions", "SavedMovie", "check_movie_options", "make_movie",
            "movie_path", "save_movie", "write_movie"]
@@ -222,13 +221,13 @@ def _turning(selection: Selection, options: MovieOptions, depth_axis: int | None
     from ..kernels import turn_volume, turning_views
 
     stack = selection.stack
-    axis = _depth_axis(selection, depth_axis)
+    axis = depth_axis_of(selection, depth_axis)
     if stack.data.ndim != 3:
         fail("INPUT", "a single z-stack (Z, Y, X) to turn", f"<axes {stack.axes}>",
              hint="pick a channel (--channel), or make one frame per time point (--over t)")
     z_step, z_from, notes = axis_step(stack, axis, options.z_step)
     voxel = (z_step,) + _lateral_steps(selection, (axis,))
-    _check_some_finite(stack.data)
+    check_some_finite(stack.data)
     volume = turn_volume(stack.data, voxel_um=voxel, turn=options.turn, max_side=options.max_side,
                          axis=axis, progress=progress)
     views = turning_views(volume, frames=options.frames, method=options.method, cmap=options.cmap,
@@ -252,13 +251,13 @@ def _series(selection: Selection, options: MovieOptions, depth_axis: int | None)
     if time is None:
         fail("--over", "a time series (a T axis) for one frame per time point",
              f"<axes {stack.axes}>")
-    axis = _depth_axis(selection, depth_axis)
+    axis = depth_axis_of(selection, depth_axis)
     if stack.data.ndim != 4:
         fail("INPUT", "a time series of z-stacks (T, Z, Y, X)", f"<axes {stack.axes}>",
              hint="pick a channel with --channel")
     z_step, z_from, notes = axis_step(stack, axis, options.z_step)
     pixel = _lateral_steps(selection, (axis, time))
-    _check_some_finite(stack.data)
+    check_some_finite(stack.data)
     views = series_views(depth_first(stack.data, time), z_step=z_step, method=options.method,
                          cmap=options.cmap, clim=options.clim, density=options.density,
                          axis=axis + (1 if axis < time else 0))

@@ -8,10 +8,19 @@ from typing import Any
 import numpy as np
 
 from .._shared.progress import Progress, sub_progress
-from .._shared.validation import check_choice, fail, is_dask
+from .._shared.validation import check_choice
 from .choices import DEFAULT_CMAP, DEPTH_CODED, PROJECTION_METHODS
 from .provenance import provenance
-from .stack import Geometry, Selection, axis_step, describe_voxel, drop_axis, geometry_of
+from .stack import (
+    Geometry,
+    Selection,
+    axis_step,
+    check_some_finite,
+    depth_axis_of,
+    describe_voxel,
+    drop_axis,
+    geometry_of,
+)
 
 __all__ = ["ProjectionOptions", "Projected", "SideView", "project_stack"]
 
@@ -115,37 +124,6 @@ class Projected:
         return np.asarray(self.result, dtype=np.float32), self.geometry
 
 
-def _check_some_finite(data: Any) -> None:
-    """Refuse a stack with no finite value: a strided look first, the whole only if needed."""
-    if np.dtype(data.dtype).kind != "f":
-        return
-    step = max(1, int(data.shape[-1]) // 64)
-    sample = data[..., ::step]
-    if is_dask(sample):
-        sample = sample[(slice(None, None, max(1, int(data.shape[0]) // 8)),)].compute()
-    if np.isfinite(np.asarray(sample)).any():
-        return
-    finite = np.isfinite(data).any()
-    if bool(finite.compute() if is_dask(finite) else finite):
-        return
-    fail("stack", "some finite values", "<only NaN or infinite values>",
-         hint="is the file empty or the wrong channel?")
-
-
-def _depth_axis(selection: Selection, depth_axis: int | None) -> int:
-    stack = selection.stack
-    if depth_axis is None:
-        depth_axis = stack.axis("Z")
-        if depth_axis is None:
-            fail("INPUT", "a z-stack (a Z axis)", f"<axes {stack.axes} and shape {tuple(stack.data.shape)}>")
-    if not 0 <= depth_axis < stack.data.ndim:
-        fail("depth axis", f"an axis from 0 to {stack.data.ndim - 1}", depth_axis)
-    if int(stack.data.shape[depth_axis]) < 2:
-        fail("INPUT", "a z-stack with 2 or more slices along the depth axis",
-             f"<{int(stack.data.shape[depth_axis])} slice>")
-    return depth_axis
-
-
 def project_stack(selection: Selection, options: ProjectionOptions, *,
                   depth_axis: int | None = None, progress: Progress = None) -> Projected:
     """Project a stack along its depth axis: the one projection job of stackdepth.
@@ -176,9 +154,9 @@ def project_stack(selection: Selection, options: ProjectionOptions, *,
 
     method = check_choice(options.method, name="method", choices=PROJECTION_METHODS)
     stack = selection.stack
-    axis = _depth_axis(selection, depth_axis)
+    axis = depth_axis_of(selection, depth_axis)
     z_step, z_from, notes = axis_step(stack, axis, options.z_step)
-    _check_some_finite(stack.data)
+    check_some_finite(stack.data)
     data = stack.data
     entries: dict[str, Any] = {
         "method": method, "z_step_um": z_step, "z_step_from": z_from, "depth_axis": axis,

@@ -13,8 +13,10 @@ import math
 from dataclasses import dataclass
 from typing import Any
 
+import numpy as np
+
 from .._shared.stack import UNITS, Stack
-from .._shared.validation import check_int, check_number, fail
+from .._shared.validation import check_int, check_number, fail, is_dask
 
 __all__ = ["Corrected", "Geometry", "Selection", "axis_step", "drop_axis",
            "geometry_of", "select"]
@@ -251,6 +253,38 @@ def axis_step(stack: Stack, axis: int, override: float | None = None, *,
                     "depths are in \u00b5m only if the step is: set it with --z-step (command "
                     "line) or 'Override z-step' (dock)",)
     return step, "file", warnings
+
+
+def check_some_finite(data: Any) -> None:
+    """Refuse a stack with no finite value: a strided look first, the whole only if needed."""
+    if np.dtype(data.dtype).kind != "f":
+        return
+    step = max(1, int(data.shape[-1]) // 64)
+    sample = data[..., ::step]
+    if is_dask(sample):
+        sample = sample[(slice(None, None, max(1, int(data.shape[0]) // 8)),)].compute()
+    if np.isfinite(np.asarray(sample)).any():
+        return
+    finite = np.isfinite(data).any()
+    if bool(finite.compute() if is_dask(finite) else finite):
+        return
+    fail("stack", "some finite values", "<only NaN or infinite values>",
+         hint="is the file empty or the wrong channel?")
+
+
+def depth_axis_of(selection: Selection, depth_axis: int | None) -> int:
+    """The depth axis of a selection: *depth_axis*, or its "Z" axis; it must hold 2+ slices."""
+    stack = selection.stack
+    if depth_axis is None:
+        depth_axis = stack.axis("Z")
+        if depth_axis is None:
+            fail("INPUT", "a z-stack (a Z axis)", f"<axes {stack.axes} and shape {tuple(stack.data.shape)}>")
+    if not 0 <= depth_axis < stack.data.ndim:
+        fail("depth axis", f"an axis from 0 to {stack.data.ndim - 1}", depth_axis)
+    if int(stack.data.shape[depth_axis]) < 2:
+        fail("INPUT", "a z-stack with 2 or more slices along the depth axis",
+             f"<{int(stack.data.shape[depth_axis])} slice>")
+    return depth_axis
 
 
 def _unusable(stack: Stack) -> dict[str, Any]:

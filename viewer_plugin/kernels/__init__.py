@@ -17,7 +17,12 @@ notebooks. The public kernels are importable from here directly.
 from .._shared.progress import Cancelled
 from .._shared.validation import ParameterError
 from ._deprecated import blended_projection, brightest_point
-from .attenuation import AttenuationFit, AttenuationWarning, correct_attenuation, estimate_attenuation
+from .attenuation import (
+    AttenuationFit,
+    AttenuationWarning,
+    correct_attenuation,
+    estimate_attenuation,
+)
 from .bleaching import (
     BleachingReport,
     TwoPassResult,

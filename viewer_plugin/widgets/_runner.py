@@ -18,8 +18,8 @@ import logging
 from typing import Any, Callable
 
 from napari.qt.threading import create_worker
-from napari.utils import progress as napari_progress
 from napari.utils import notifications
+from napari.utils import progress as napari_progress
 from qtpy.QtCore import QObject, Signal
 
 from .._shared.progress import Cancelled

@@ -9,9 +9,16 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 from magicgui.widgets import CheckBox, ComboBox, FloatSlider, FloatSpinBox, Label, PushButton
 
-from ..jobs.choices import COLOUR_MAPS, DEFAULT_CMAP, DEPTH_CODED, METHOD_LABELS, PROJECTION_CAVEAT, labelled
+from ..jobs.choices import (
+    COLOUR_MAPS,
+    DEFAULT_CMAP,
+    DEPTH_CODED,
+    METHOD_LABELS,
+    PROJECTION_CAVEAT,
+    labelled,
+)
 from ._dock import in_dock_words, layer_data, layer_stack
-from .projection import ProjectionDock
+from ._projection_base import ProjectionDock
 
 if TYPE_CHECKING:  # pragma: no cover
     import napari

@@ -23,7 +23,7 @@ from ..._shared.validation import check_choice, check_int, check_stack, fail, is
 from ..primitives.chunks import map_depth_blocks
 from ..primitives.gain import apply_gains
 from ..primitives.matching import empirical_cdf, match_to_cdf
-from .estimate import BleachingReport, estimate_bleaching
+from .estimate import BleachingReport, estimate_bleaching  # noqa: F401 (the Examples use it)
 
 __all__ = ["RESCALE", "correct_bleaching", "equalise_to_reference"]
 

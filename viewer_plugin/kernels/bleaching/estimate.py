@@ -18,7 +18,14 @@ from typing import Any
 import numpy as np
 
 from ..._shared.progress import Progress, report_progress
-from ..._shared.validation import check_choice, check_mask, check_number, check_stack, depth_first, fail
+from ..._shared.validation import (
+    check_choice,
+    check_mask,
+    check_number,
+    check_stack,
+    depth_first,
+    fail,
+)
 from ..primitives.background import frames_background
 from ..primitives.fitting import r_squared
 from ..primitives.foreground import measure_depth_profile
