@@ -174,7 +174,7 @@ class AttenuationFit:
         >>> stack[:, ::8, :] += 1000 * np.exp(-np.arange(20)[:, None, None] * 2.0 / 50.0)
         >>> fit = estimate_attenuation(rng.poisson(stack), z_step=2.0, n_resamples=0)
         >>> fit.describe().split(";")[0]
-        'attenuation length 49.82 um, 95 % interval 48.9 to 50.77 um'
+        'attenuation length 49.9 um, 95 % interval 49.75 to 50.05 um'
         """
         return f"{interval_words(self)}; {self.interval_method}" + (
             f", {self.n_resamples} resamples of {self.n_tiles} tiles, seed {self.seed}"
