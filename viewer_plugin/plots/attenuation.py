@@ -14,18 +14,29 @@ from matplotlib.figure import Figure
 
 from ..kernels.attenuation import AttenuationFit
 
-__all__ = ["attenuation_figure", "length_text", "truth_text"]
+__all__ = ["attenuation_figure", "interval_text", "length_text", "truth_text"]
 
 
 def length_text(fit: AttenuationFit) -> str:
-    """'ℓ = 41 µm (95 %: 38–45 µm)' with the right number of digits; inf spelled out."""
+    """'ℓ = 41 µm (95 %: 38–45 µm)' with the right number of digits; an open end said in words."""
     low, high = fit.length_interval_um
     if math.isinf(fit.length_um):
         main = "ℓ = ∞ (no decrease with depth)"
     else:
         main = f"ℓ = {fit.length_um:.3g} µm"
-    high_text = "∞" if math.isinf(high) else f"{high:.3g}"
-    return f"{main} (95 %: {low:.3g}–{high_text} µm)"
+    if math.isinf(low):
+        return f"{main} (95 %: open; the signal does not decrease with depth)"
+    if math.isinf(high):
+        return f"{main} (95 %: {low:.3g} µm to ∞ — the data cannot exclude no attenuation)"
+    return f"{main} (95 %: {low:.3g}–{high:.3g} µm)"
+
+
+def interval_text(fit: AttenuationFit) -> str:
+    """How the interval was made and how much of the field carried the fit, in one line."""
+    how = fit.interval_method
+    if fit.n_resamples:
+        how += f" ({fit.n_resamples} resamples, seed {fit.seed})"
+    return f"interval: {how}; foreground in {fit.field_fraction:.0%} of the lateral field"
 
 
 def truth_text(truth: Mapping[str, Any] | None) -> str:
@@ -95,7 +106,7 @@ def attenuation_figure(
     top.set_ylabel("signal above background")
     top.legend(loc="upper right", fontsize="small", frameon=False)
     if annotate:
-        lines = [f"{length_text(fit)}; exponential fit r² = {fit.r_squared:.3f}"]
+        lines = [f"{length_text(fit)}; exponential fit r² = {fit.r_squared:.3f}", interval_text(fit)]
         demo = truth_text(truth)
         if demo:
             lines.append(demo)

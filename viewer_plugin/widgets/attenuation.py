@@ -248,11 +248,11 @@ class AttenuationWidget(StackDock):
         return truth_text(layer_stack(layer).truth) if layer is not None else ""
 
     def _show(self, layer: Any, notes: list[str]) -> None:
-        from ..plots.attenuation import length_text
+        from ..plots.attenuation import interval_text, length_text
 
         fit = self.fit_result
         self.result_label.value = (f"Estimate: {length_text(fit)}; exponential fit r² = "
-                                   f"{fit.r_squared:.3f}")
+                                   f"{fit.r_squared:.3f}\n{interval_text(fit)}")
         self.truth_label.value = self._truth_line(layer)
         capped = int(np.sum(np.where(np.isfinite(fit.gain), fit.gain, 1.0) > self.max_gain.value))
         if capped:
