@@ -7,6 +7,7 @@ and by ``stackdepth attenuation --plot`` (saved as PNG).
 from __future__ import annotations
 
 import math
+import textwrap
 from typing import Any, Mapping
 
 import numpy as np
@@ -36,7 +37,7 @@ def interval_text(fit: AttenuationFit) -> str:
     how = fit.interval_method
     if fit.n_resamples:
         how += f" ({fit.n_resamples} resamples, seed {fit.seed})"
-    return f"interval: {how}; foreground in {fit.field_fraction:.0%} of the lateral field"
+    return f"interval: {how}; fit carried by {fit.field_fraction:.0%} of the lateral field"
 
 
 def truth_text(truth: Mapping[str, Any] | None) -> str:
@@ -106,7 +107,8 @@ def attenuation_figure(
     top.set_ylabel("signal above background")
     top.legend(loc="upper right", fontsize="small", frameon=False)
     if annotate:
-        lines = [f"{length_text(fit)}; exponential fit r² = {fit.r_squared:.3f}", interval_text(fit)]
+        lines = [f"{length_text(fit)}; exponential fit r² = {fit.r_squared:.3f}",
+                 *textwrap.wrap(interval_text(fit), 90)]
         demo = truth_text(truth)
         if demo:
             lines.append(demo)

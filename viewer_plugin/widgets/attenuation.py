@@ -117,6 +117,8 @@ class AttenuationWidget(StackDock):
         self._caution = Label(value=ATTENUATION_CAVEAT + " The original layer is kept.")
         for label in (self.result_label, self.truth_label, self._caution):
             label.native.setWordWrap(True)
+        # length and interval, then how the interval was made: room for seven wrapped lines
+        self.result_label.native.setMinimumHeight(7 * self.result_label.native.fontMetrics().lineSpacing())
         self.extend([self.model, self.max_gain, self.mask_combo])
         self.action_buttons += [self.fit_button, self.correct_button]
 

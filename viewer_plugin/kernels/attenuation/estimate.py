@@ -284,8 +284,11 @@ def estimate_attenuation(
     that slice's background, so it does not depend on how much structure a
     slice holds. The background is a sigma-clipped mean of the dim voxels
     (unbiased by shot noise, see :mod:`viewer_plugin.kernels.primitives.background`). The
-    foreground is chosen with one Otsu threshold on the *corrected* stack;
-    because that depends on the correction, selection and fit alternate
+    foreground is chosen with one threshold on the *corrected* stack, pinned
+    to the brightest slice (15 of its corrected background standard
+    deviations; slices whose corrected noise exceeds 3 times that slice's
+    are not measured); because the selection depends on the correction,
+    selection and fit alternate
     until the gains change by less than 0.01 % (or by less than 1 % after
     16 passes, when the loop hops between two nearly equal selections). The
     measurement uses a lateral sample (every *lateral_step*-th row and column).

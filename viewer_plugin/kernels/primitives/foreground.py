@@ -14,13 +14,18 @@ slice's sigma-clipped background (:func:`.background.rows_background`)
 subtracted. :class:`ForegroundSample` keeps the voxels that can ever be
 foreground sorted per slice, with the lateral tile each lies in, so that a
 measurement is a binary search per slice -- also with the tiles weighted by
-a bootstrap resample, which re-runs the whole select-and-fit loop cheaply.
+a bootstrap resample (and slices counted as often as it drew them), which
+re-runs the whole select-and-fit loop cheaply. Two threshold rules
+(:meth:`ForegroundSample.threshold`): "pinned" to the brightest slice (the
+attenuation estimate) and "noisiest" (following the noisiest measured slice,
+the default of :func:`measure_depth_profile`).
 
 Where it is used: :func:`~viewer_plugin.kernels.estimate_attenuation` (its
-profile, with the exponential model and with its smooth model) and the
-depth check of :func:`~viewer_plugin.kernels.estimate_bleaching` for a
-single stack (:func:`measure_depth_profile`), so that the two read the same
-decay from one stack.
+profile, with the exponential model and with its smooth model, and its
+bootstrap interval) and the depth check of
+:func:`~viewer_plugin.kernels.estimate_bleaching` for a single stack
+(:func:`measure_depth_profile`, "noisiest" rule until that check is validated
+with the pinned one).
 """
 
 from __future__ import annotations
