@@ -413,7 +413,9 @@ def estimate_attenuation(
     done = measured.done
     if model == "smooth":
         bandwidth = smoothing_um if smoothing_um is not None else max(depth[-1] / 10.0, z_step)
-        smooth = iterate_foreground(measured.selection, depth,
+        # a smooth gain curve moves the brightest slice's own gain from pass to pass, so a
+        # threshold pinned to that slice can hop: the smooth loop follows the noisiest slice
+        smooth = iterate_foreground(measured.selection.with_rule("noisiest"), depth,
                                     partial(models.smooth_gain, bandwidth=bandwidth),
                                     progress=progress, done=done, total=total)
         fg, gain, curve = smooth.foreground, smooth.gain, smooth.curve

@@ -30,6 +30,7 @@ with the pinned one).
 
 from __future__ import annotations
 
+import copy
 import math
 import warnings
 from dataclasses import dataclass
@@ -285,6 +286,13 @@ class ForegroundSample:
         self.finite_tiles = np.isfinite(above).astype(np.float64) @ onehot
         self.lateral_finite = int(np.isfinite(above).any(axis=0).sum())
         self.unweighted = self.weighting()
+
+    def with_rule(self, rule: str) -> "ForegroundSample":
+        """The same prepared sample with another threshold rule (and its default growth)."""
+        other = copy.copy(self)
+        other.rule = rule
+        other.growth = PINNED_GROWTH if rule == "pinned" else MAX_NOISE_GROWTH
+        return other
 
     def weighting(self, tiles: np.ndarray | None = None, slices: np.ndarray | None = None) -> Weighting:
         """Each tile counted *tiles[t]* times, each slice *slices[z]* times (default: once)."""
