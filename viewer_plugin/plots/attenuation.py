@@ -14,22 +14,18 @@ import numpy as np
 from matplotlib.figure import Figure
 
 from ..kernels.attenuation import AttenuationFit
+from ..kernels.attenuation.estimate import interval_words
 
 __all__ = ["attenuation_figure", "interval_text", "length_text", "truth_text"]
 
 
 def length_text(fit: AttenuationFit) -> str:
-    """'ℓ = 41 µm (95 %: 38–45 µm)' with the right number of digits; an open end said in words."""
-    low, high = fit.length_interval_um
+    """'ℓ = 41 µm (95 % interval 38 to 45 µm)', three digits; an open end said in words."""
     if math.isinf(fit.length_um):
         main = "ℓ = ∞ (no decrease with depth)"
     else:
         main = f"ℓ = {fit.length_um:.3g} µm"
-    if math.isinf(low):
-        return f"{main} (95 %: open; the signal does not decrease with depth)"
-    if math.isinf(high):
-        return f"{main} (95 %: {low:.3g} µm to ∞ — the data cannot exclude no attenuation)"
-    return f"{main} (95 %: {low:.3g}–{high:.3g} µm)"
+    return f"{main} ({interval_words(fit, unit='µm', digits=3)})"
 
 
 def interval_text(fit: AttenuationFit) -> str:

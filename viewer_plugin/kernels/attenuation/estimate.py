@@ -176,30 +176,37 @@ class AttenuationFit:
         >>> fit.describe().split(";")[0]
         'attenuation length 49.9 um, 95 % interval 49.75 to 50.05 um'
         """
-        return f"{interval_words(self)}; {self.interval_method}" + (
-            f", {self.n_resamples} resamples of {self.n_tiles} tiles, seed {self.seed}"
-            if self.n_resamples else "") + (
-            f"; exponential fit r^2 = {self.r_squared:.3f} ({self.model} model); "
-            f"foreground in {self.field_fraction:.0%} of the lateral field")
+        if math.isinf(self.length_um):
+            text = "no decrease with depth (attenuation length: inf)"
+        else:
+            text = f"attenuation length {self.length_um:.4g} um"
+        text += f", {interval_words(self)}; {self.interval_method}"
+        if self.n_resamples:
+            text += f", {self.n_resamples} resamples of {self.n_tiles} tiles, seed {self.seed}"
+        return (text + f"; exponential fit r^2 = {self.r_squared:.3f} ({self.model} model); "
+                f"foreground in {self.field_fraction:.0%} of the lateral field")
 
 
 def interval_words(fit: AttenuationFit, *, unit: str = "um", digits: int = 4) -> str:
-    """'attenuation length 41 um, 95 % interval 30 to 60 um', with an open end said in words.
+    """'95 % interval 30 to 60 um', with an open end said in words.
 
-    An infinite upper end reads "at least <low> um: the data cannot exclude
-    no attenuation"; an infinite length "no decrease with depth".
+    An infinite upper end reads "95 % interval from <low> um to infinity:
+    the data cannot exclude no attenuation"; an interval with no finite end
+    says that the signal does not decrease with depth.
+
+    Examples
+    --------
+    >>> from types import SimpleNamespace
+    >>> interval_words(SimpleNamespace(length_interval_um=(30.0, math.inf)), unit="µm", digits=3)
+    '95 % interval from 30 µm to infinity: the data cannot exclude no attenuation'
     """
     low, high = fit.length_interval_um
-    if math.isinf(fit.length_um):
-        text = "no decrease with depth (attenuation length: inf)"
-    else:
-        text = f"attenuation length {fit.length_um:.{digits}g} {unit}"
     if math.isinf(low):
-        return text + ", 95 % interval open (the signal does not decrease with depth)"
+        return "95 % interval open: the signal does not decrease with depth"
     if math.isinf(high):
-        return (text + f", 95 % interval from {low:.{digits}g} {unit} to infinity: "
+        return (f"95 % interval from {low:.{digits}g} {unit} to infinity: "
                 "the data cannot exclude no attenuation")
-    return text + f", 95 % interval {low:.{digits}g} to {high:.{digits}g} {unit}"
+    return f"95 % interval {low:.{digits}g} to {high:.{digits}g} {unit}"
 
 
 def _check_inputs(stack: Any, z_step: Any, model: Any, axis: Any, mask: Any) -> tuple:
