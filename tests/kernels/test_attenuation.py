@@ -402,3 +402,50 @@ def test_very_strong_attenuation_uses_the_measurable_slices():
     assert int(np.isfinite(fit.profile).sum()) >= 3
     assert fit.length_um == pytest.approx(10.0, rel=0.06)
     assert np.isnan(fit.profile[-1]) and any("left out" in note for note in fit.warnings)
+
+
+# --- the bootstrap interval: progress, cancel, seed, open end ---------------------------------
+
+def test_resampling_reports_progress_and_can_be_cancelled(stack60):
+    from viewer_plugin.kernels.attenuation.uncertainty import PROGRESS_STEPS
+
+    calls = []
+    fit = estimate_attenuation(stack60, z_step=2.0, n_resamples=200,
+                               progress=lambda d, t: calls.append((d, t)))
+    total = calls[-1][1]
+    assert calls[-1][0] == total and fit.n_resamples == 200
+    # the resampling reports PROGRESS_STEPS steps just before the end
+    late = [d for d, _ in calls if total - PROGRESS_STEPS - 1 <= d < total]
+    assert len(late) >= PROGRESS_STEPS
+
+    def stop_late(done, total):
+        if done > total - PROGRESS_STEPS // 2:
+            raise Cancelled
+
+    with pytest.raises(Cancelled):
+        estimate_attenuation(stack60, z_step=2.0, n_resamples=200, progress=stop_late)
+
+
+def test_same_seed_same_interval_and_it_is_recorded(stack60):
+    a = estimate_attenuation(stack60, z_step=2.0, n_resamples=200, seed=3)
+    b = estimate_attenuation(stack60, z_step=2.0, n_resamples=200, seed=3)
+    c = estimate_attenuation(stack60, z_step=2.0, n_resamples=200, seed=4)
+    assert a.length_interval_um == b.length_interval_um
+    assert a.length_interval_um != c.length_interval_um and a.length_um == c.length_um
+    assert (a.seed, a.n_resamples, a.n_tiles) == (3, 200, 16)
+    assert a.interval_method == "percentile bootstrap over lateral tiles and depth blocks"
+    assert "200 resamples of 16 tiles, seed 3" in a.describe()
+    with pytest.raises(ParameterError, match="^n_resamples: expected"):
+        estimate_attenuation(stack60, z_step=2.0, n_resamples=-1)
+    with pytest.raises(ParameterError, match="^seed: expected"):
+        estimate_attenuation(stack60, z_step=2.0, seed=-2)
+
+
+def test_interval_open_when_no_attenuation_cannot_be_excluded():
+    # Without attenuation the decay rate's interval reaches 0: the length's upper end is
+    # infinite, and the text says so in words rather than quoting a length.
+    stack = beer_lambert(length=math.inf, seed=5, n=20)
+    fit = estimate_attenuation(stack, z_step=2.0, n_resamples=300)
+    assert math.isinf(fit.length_interval_um[1])
+    assert "cannot exclude no attenuation" in fit.describe() or "does not decrease" in fit.describe()
+    assert 0.0 < fit.field_fraction <= 1.0
