@@ -71,3 +71,28 @@ def test_shipped_sample_file_matches_the_generator():
     assert stack.axes == "ZYX" and stack.data.shape == fresh.data.shape
     assert stack.scale == pytest.approx(fresh.scale)
     assert stack.metadata["truth"]["attenuation_length_um"] == fresh.truth["attenuation_length_um"]
+
+
+def test_photomultiplier_excess_noise_scales_the_variance():
+    """Var(counts) = F2 * g**2 * photons for Poisson photons and a random gain per
+    photoelectron with mean g and variance (F2 - 1) g**2 (law of total variance; the
+    excess noise factor F2 as usually defined for photomultipliers). With no structure the
+    counts are offset + gain * Poisson(haze) with haze photons per voxel."""
+    flat = {"shape": (6, 128, 128), "n_fibres": 0, "read_noise_counts": 0.0,
+            "attenuation_length_um": float("inf"), "bleach_rate_per_exposure": 0.0}
+    for f2 in (1.0, 1.5):
+        stack = demo.fibre_slab(seed=7, excess_noise_f2=f2, **flat)
+        t = stack.truth
+        counts = stack.data.astype(float) - t["detector_offset"]
+        mean = t["counts_per_photon"] * t["haze_photons"]
+        assert counts.mean() == pytest.approx(mean, rel=0.01)
+        # rounding to integer counts adds 1/12 (uniform rounding error, derived)
+        expected = f2 * t["counts_per_photon"] ** 2 * t["haze_photons"] + (1 / 12 if f2 > 1 else 0)
+        assert counts.var() == pytest.approx(expected, rel=0.03)
+        assert t["excess_noise_f2"] == f2
+
+
+def test_structure_is_kept_on_request():
+    stack = demo.fibre_slab(keep_structure=True, **SMALL)
+    assert stack.structure is not None and stack.structure.shape == stack.data.shape
+    assert stack.structure.max() > 0.3 and demo.fibre_slab(**SMALL).structure is None

@@ -1,16 +1,23 @@
 """The synthetic demo scenario: a "fibre slab" imaged by a point-scanning confocal.
 
 A slab of cleared tissue holds tortuous, occasionally branching axon-like fibres
-(radius 0.3-1 um). A one-photon point-scanning confocal images it with
-0.3 x 0.3 um pixels and 1 um z-steps. The signal model, per voxel, is::
+(radius 0.3-1 um). A one-photon point-scanning confocal with a photomultiplier
+images it with 0.3 x 0.3 um pixels and 1 um z-steps. The signal model, per voxel, is::
 
-    photons = P * fibre(z, y, x) * exp(-z / L) * (1 - k) ** n_exposures + haze
-    counts  = offset + g * Poisson(photons) + Normal(0, read_noise)
+    photons   = (P * fibre(z, y, x) + haze) * exp(-z / L) * (1 - k) ** n_exposures
+    electrons = Poisson(photons)
+    counts    = offset + Gamma(electrons / (F2 - 1), g * (F2 - 1)) + Normal(0, read_noise)
 
 with the attenuation length ``L`` (Beer-Lambert, excitation and emission
 together), the bleaching rate ``k`` per slice exposure, the detector gain
-``g`` (counts per photon), a detector offset and read noise. In one-photon
-confocal imaging every slice exposure bleaches the whole depth, so slice *i*
+``g`` (counts per photon), a detector offset and read noise. The haze (diffuse
+out-of-focus light from the labelled tissue around the focus) is attenuated
+and bleached like the in-focus signal: it comes from the same depth. The
+photomultiplier's gain is itself random: each photoelectron's output varies,
+which multiplies the variance of the counts by the excess noise factor ``F2``
+(``Var = F2 * g**2 * photons``; a Gamma-distributed sum of the electrons'
+outputs has that mean and variance; ``F2 = 1`` is a noise-free gain). In
+one-photon confocal imaging every slice exposure bleaches the whole depth, so slice *i*
 of a stack is seen after *i* exposures; in the deepest-first second pass of a
 two-pass acquisition after ``2N - 1 - i``; in a time series, time point *t*
 slice *i* after ``t * N + i``.
@@ -45,6 +52,10 @@ DEFAULTS: dict[str, Any] = {
     "counts_per_photon": 6.0,
     "detector_offset": 100.0,
     "read_noise_counts": 4.0,
+    # excess noise factor F2 of the detector's gain: 1 is an ideal photon counter (the
+    # default, see the module docstring); photomultipliers are quoted at about 1.1-1.5
+    # (from memory, not confirmed in a source)
+    "excess_noise_f2": 1.0,
     "psf_sigma_um": (0.35, 0.1, 0.1),
 }
 
@@ -65,6 +76,10 @@ class DemoStack:
         Step per axis (um for Z/Y/X, seconds for T).
     truth : dict
         The true parameters used to make it (JSON-serialisable).
+    structure : ndarray of float32 or None
+        The noise-free fibre density before attenuation (peak about 1 on a
+        fibre's axis), kept only when asked for (``keep_structure=True``):
+        the "ideal mask" of the estimator benchmarks.
     """
 
     name: str
@@ -72,6 +87,7 @@ class DemoStack:
     axes: str
     scale: tuple[float, ...]
     truth: dict[str, Any] = field(default_factory=dict)
+    structure: np.ndarray | None = None
 
 
 def _walk(rng: np.random.Generator, start: np.ndarray, heading: np.ndarray,
@@ -177,7 +193,13 @@ def _expose(rng: np.random.Generator, structure: np.ndarray, exposures: np.ndarr
     bleach = (1.0 - p["bleach_rate_per_exposure"]) ** exposures
     factor = (attenuation * bleach).astype(np.float32)[:, None, None]
     photons = (p["peak_photons"] * structure + p["haze_photons"]) * factor
-    counts = p["counts_per_photon"] * rng.poisson(photons).astype(np.float32)
+    electrons = rng.poisson(photons)
+    f2 = float(p["excess_noise_f2"])
+    if f2 > 1.0:  # random multiplication: mean g per electron, variance (F2 - 1) g**2 per electron
+        counts = rng.gamma(electrons / (f2 - 1.0), p["counts_per_photon"] * (f2 - 1.0))
+        counts = counts.astype(np.float32)
+    else:
+        counts = p["counts_per_photon"] * electrons.astype(np.float32)
     counts += p["detector_offset"]
     counts += rng.normal(0.0, p["read_noise_counts"], size=counts.shape).astype(np.float32)
     return np.clip(np.rint(counts), 0, 65535).astype(np.uint16)
@@ -190,6 +212,7 @@ def _params(overrides: dict[str, Any]) -> dict[str, Any]:
                  allow_inf=True)
     check_number(p["bleach_rate_per_exposure"], name="bleach_rate_per_exposure", low=0, high=1,
                  high_open=True)
+    check_number(p["excess_noise_f2"], name="excess_noise_f2", low=1.0)
     return p
 
 
@@ -208,6 +231,7 @@ def _truth(p: dict[str, Any], seed: int, **extra: Any) -> dict[str, Any]:
         "detector_offset": float(p["detector_offset"]),
         "counts_per_photon": float(p["counts_per_photon"]),
         "read_noise_counts": float(p["read_noise_counts"]),
+        "excess_noise_f2": float(p["excess_noise_f2"]),
         "peak_photons": float(p["peak_photons"]),
         "haze_photons": float(p["haze_photons"]),
     }
@@ -216,7 +240,7 @@ def _truth(p: dict[str, Any], seed: int, **extra: Any) -> dict[str, Any]:
 
 
 def fibre_slab(*, seed: int = 0, shape: tuple[int, int, int] = (60, 256, 256),
-               n_fibres: int = 14, **overrides: Any) -> DemoStack:
+               n_fibres: int = 14, keep_structure: bool = False, **overrides: Any) -> DemoStack:
     """The single z-stack "fibre slab" (sample a).
 
     Parameters
@@ -227,6 +251,8 @@ def fibre_slab(*, seed: int = 0, shape: tuple[int, int, int] = (60, 256, 256),
         (Z, Y, X) in voxels.
     n_fibres : int
         Number of primary fibres (branches come on top).
+    keep_structure : bool
+        Also return the noise-free structure (``DemoStack.structure``).
     **overrides
         Any key of :data:`DEFAULTS`, e.g. ``attenuation_length_um=80``.
 
@@ -247,7 +273,8 @@ def fibre_slab(*, seed: int = 0, shape: tuple[int, int, int] = (60, 256, 256),
     structure = _structure(rng, shape, p["voxel_size_um"], n_fibres)
     data = _expose(rng, structure, np.arange(shape[0]), p)
     truth = _truth(p, seed, acquisition="forward (slice 0 first)", n_slices=int(shape[0]))
-    return DemoStack("fibre slab", data, "ZYX", tuple(float(v) for v in p["voxel_size_um"]), truth)
+    return DemoStack("fibre slab", data, "ZYX", tuple(float(v) for v in p["voxel_size_um"]), truth,
+                     structure if keep_structure else None)
 
 
 def bleach_series(*, seed: int = 1, n_time: int = 20, shape: tuple[int, int, int] = (16, 128, 128),

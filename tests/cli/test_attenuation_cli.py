@@ -46,7 +46,10 @@ def test_report_plot_and_corrected_stack(slab_file, tmp_path, capsys):
     assert data["parameters"]["z_step_um"] == 1.0 and data["input"].endswith("slab.ome.tif")
     assert data["demo_truth"]["attenuation_length_um"] == demo.truth["attenuation_length_um"]
     low, high = data["length_interval_um"]
+    high = float("inf") if high is None else high  # the report's "null_means": infinite
     assert low < data["length_um"] < high
+    assert data["interval_method"].startswith("percentile bootstrap") and data["n_resamples"] == 1000
+    assert 0.0 < data["field_fraction"] <= 1.0 and data["seed"] == 0
     corrected = read_stack(out)
     assert corrected.data.dtype == np.float32 and corrected.data.shape == demo.data.shape
     assert corrected.scale == pytest.approx(demo.scale)

@@ -116,7 +116,8 @@ def measure_attenuation(selection: Selection, options: AttenuationOptions, *,
     record = provenance("attenuation", selection, model=fit.model, depth_axis=axis,
                         axes=stack.axes, z_step_um=z_step, z_step_from=z_from, max_gain=max_gain,
                         length_um=fit.length_um, length_interval_um=list(fit.length_interval_um),
-                        masked=mask is not None, caution=ATTENUATION_CAVEAT)
+                        interval_method=fit.interval_method, n_resamples=fit.n_resamples,
+                        seed=fit.seed, masked=mask is not None, caution=ATTENUATION_CAVEAT)
     return Measured(selection, fit, axis, options, notes, capped, record)
 
 
@@ -159,6 +160,11 @@ def attenuation_record(measured: Measured) -> dict[str, Any]:
         "channel_name": measured.selection.channel_name,
         "length_um": fit.length_um,
         "length_interval_um": list(fit.length_interval_um),
+        "interval_method": fit.interval_method,
+        "n_resamples": fit.n_resamples,
+        "n_tiles": fit.n_tiles,
+        "seed": fit.seed,
+        "field_fraction": fit.field_fraction,
         "model": fit.model,
         "r_squared": fit.r_squared,
         "offset": fit.offset,

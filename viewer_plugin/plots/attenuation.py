@@ -7,26 +7,34 @@ and by ``stackdepth attenuation --plot`` (saved as PNG).
 from __future__ import annotations
 
 import math
+import textwrap
 from typing import Any, Mapping
 
 import numpy as np
 from matplotlib.figure import Figure
 
 from ..kernels.attenuation import AttenuationFit
+from ..kernels.attenuation.estimate import interval_words
 from ._common import new_figure
 
-__all__ = ["attenuation_figure", "length_text", "truth_text"]
+__all__ = ["attenuation_figure", "interval_text", "length_text", "truth_text"]
 
 
 def length_text(fit: AttenuationFit) -> str:
-    """'ℓ = 41 µm (95 %: 38–45 µm)' with the right number of digits; inf spelled out."""
-    low, high = fit.length_interval_um
+    """'ℓ = 41 µm (95 % interval 38 to 45 µm)', three digits; an open end said in words."""
     if math.isinf(fit.length_um):
         main = "ℓ = ∞ (no decrease with depth)"
     else:
         main = f"ℓ = {fit.length_um:.3g} µm"
-    high_text = "∞" if math.isinf(high) else f"{high:.3g}"
-    return f"{main} (95 %: {low:.3g}–{high_text} µm)"
+    return f"{main} ({interval_words(fit, unit='µm', digits=3)})"
+
+
+def interval_text(fit: AttenuationFit) -> str:
+    """How the interval was made and how much of the field carried the fit, in one line."""
+    how = fit.interval_method
+    if fit.n_resamples:
+        how += f" ({fit.n_resamples} resamples, seed {fit.seed})"
+    return f"interval: {how}; fit carried by {fit.field_fraction:.0%} of the lateral field"
 
 
 def truth_text(truth: Mapping[str, Any] | None) -> str:
@@ -90,7 +98,8 @@ def attenuation_figure(
     top.set_ylabel("signal above background")
     top.legend(loc="upper right", fontsize="small", frameon=False)
     if annotate:
-        lines = [f"{length_text(fit)}; exponential fit r² = {fit.r_squared:.3f}"]
+        lines = [f"{length_text(fit)}; exponential fit r² = {fit.r_squared:.3f}",
+                 *textwrap.wrap(interval_text(fit), 90)]
         demo = truth_text(truth)
         if demo:
             lines.append(demo)

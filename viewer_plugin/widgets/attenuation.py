@@ -118,6 +118,8 @@ class AttenuationWidget(StackDock):
         self._caution = Label(value=ATTENUATION_CAVEAT + " The original layer is kept.")
         for label in (self.result_label, self.truth_label, self._caution):
             label.native.setWordWrap(True)
+        # length and interval, then how the interval was made: room for seven wrapped lines
+        self.result_label.native.setMinimumHeight(7 * self.result_label.native.fontMetrics().lineSpacing())
         self.extend([self.model, self.max_gain, self.mask_combo])
         self.action_buttons += [self.fit_button, self.correct_button]
 
@@ -249,11 +251,11 @@ class AttenuationWidget(StackDock):
         return truth_text(layer_stack(layer).truth) if layer is not None else ""
 
     def _show(self, layer: Any, notes: list[str]) -> None:
-        from ..plots.attenuation import length_text
+        from ..plots.attenuation import interval_text, length_text
 
         fit = self.fit_result
         self.result_label.value = (f"Estimate: {length_text(fit)}; exponential fit r² = "
-                                   f"{fit.r_squared:.3f}")
+                                   f"{fit.r_squared:.3f}\n{interval_text(fit)}")
         self.truth_label.value = self._truth_line(layer)
         capped = int(np.sum(np.where(np.isfinite(fit.gain), fit.gain, 1.0) > self.max_gain.value))
         if capped:

@@ -43,11 +43,13 @@ from ..primitives.foreground import (
 )
 from . import models
 from .correct import apply_correction
+from .uncertainty import PROGRESS_STEPS, LengthInterval, length_uncertainty
 
 __all__ = [
     "AttenuationFit",
     "AttenuationWarning",
     "CAUTION",
+    "DEFAULT_RESAMPLES",
     "MODELS",
     "correct_attenuation",
     "estimate_attenuation",
@@ -55,6 +57,9 @@ __all__ = [
 
 #: The depth models of :func:`estimate_attenuation`.
 MODELS = ("exponential", "smooth", "quantile")
+
+#: Tile resamples of the default interval on the length (BCa needs 1000 or more).
+DEFAULT_RESAMPLES = 1000
 
 #: Shown wherever corrected data or an estimated length is shown.
 CAUTION = (
@@ -79,7 +84,19 @@ class AttenuationFit:
         1/e attenuation length in um from the exponential fit (all models);
         ``inf`` when the signal does not decrease with depth.
     length_interval_um : tuple of float
-        95 % interval on *length_um* (the upper end may be ``inf``).
+        95 % interval on *length_um*. The upper end is ``inf`` when the data
+        cannot exclude "no attenuation" (the interval on the decay rate
+        reaches 0): say "at least <low> um", not a length.
+    interval_method : str
+        How the interval was made: "BCa bootstrap over lateral tiles" (the
+        default; "percentile ..." when BCa cannot be formed) or
+        "t (slice scatter about the fit)" (``n_resamples=0`` or too few tiles).
+    n_resamples, n_tiles, seed : int
+        Tile resamples drawn (0 for the t interval), lateral tiles, and the
+        seed of the resampling (same seed, same interval).
+    field_fraction : float
+        Share of the sampled lateral field holding foreground in at least one
+        measured slice: how much of the field carried the fit.
     r_squared : float
         Weighted coefficient of determination of the exponential fit of
         ``ln profile``: how much of the depth variation Beer-Lambert explains.
@@ -116,6 +133,11 @@ class AttenuationFit:
     model: str
     length_um: float
     length_interval_um: tuple[float, float]
+    interval_method: str
+    n_resamples: int
+    n_tiles: int
+    seed: int
+    field_fraction: float
     r_squared: float
     offset: float
     profile: np.ndarray
@@ -143,14 +165,48 @@ class AttenuationFit:
                 array.flags.writeable = False
 
     def describe(self) -> str:
-        """One line: the length, its interval and the fit quality."""
-        low, high = self.length_interval_um
+        """The length, its interval in words, how the interval was made, fit quality and field used.
+
+        Examples
+        --------
+        >>> rng = np.random.default_rng(0)
+        >>> stack = np.full((20, 64, 64), 100.0)
+        >>> stack[:, ::8, :] += 1000 * np.exp(-np.arange(20)[:, None, None] * 2.0 / 50.0)
+        >>> fit = estimate_attenuation(rng.poisson(stack), z_step=2.0, n_resamples=0)
+        >>> fit.describe().split(";")[0]
+        'attenuation length 49.9 um, 95 % interval 49.75 to 50.05 um'
+        """
         if math.isinf(self.length_um):
             text = "no decrease with depth (attenuation length: inf)"
         else:
             text = f"attenuation length {self.length_um:.4g} um"
-        text += f", 95 % interval {low:.4g} to {'inf' if math.isinf(high) else f'{high:.4g}'} um"
-        return text + f"; exponential fit r^2 = {self.r_squared:.3f} ({self.model} model)"
+        text += f", {interval_words(self)}; {self.interval_method}"
+        if self.n_resamples:
+            text += f", {self.n_resamples} resamples of {self.n_tiles} tiles, seed {self.seed}"
+        return (text + f"; exponential fit r^2 = {self.r_squared:.3f} ({self.model} model); "
+                f"foreground in {self.field_fraction:.0%} of the lateral field")
+
+
+def interval_words(fit: AttenuationFit, *, unit: str = "um", digits: int = 4) -> str:
+    """'95 % interval 30 to 60 um', with an open end said in words.
+
+    An infinite upper end reads "95 % interval from <low> um to infinity:
+    the data cannot exclude no attenuation"; an interval with no finite end
+    says that the signal does not decrease with depth.
+
+    Examples
+    --------
+    >>> from types import SimpleNamespace
+    >>> interval_words(SimpleNamespace(length_interval_um=(30.0, math.inf)), unit="µm", digits=3)
+    '95 % interval from 30 µm to infinity: the data cannot exclude no attenuation'
+    """
+    low, high = fit.length_interval_um
+    if math.isinf(low):
+        return "95 % interval open: the signal does not decrease with depth"
+    if math.isinf(high):
+        return (f"95 % interval from {low:.{digits}g} {unit} to infinity: "
+                "the data cannot exclude no attenuation")
+    return f"95 % interval {low:.{digits}g} to {high:.{digits}g} {unit}"
 
 
 def _check_inputs(stack: Any, z_step: Any, model: Any, axis: Any, mask: Any) -> tuple:
@@ -167,7 +223,7 @@ def _check_inputs(stack: Any, z_step: Any, model: Any, axis: Any, mask: Any) -> 
 
 
 def _findings(fit: LineFit, fg: Foreground, length: float,
-              interval: tuple[float, float], converged: bool, model: str) -> list[str]:
+              uncertainty: LengthInterval, converged: bool, model: str) -> list[str]:
     notes = []
     if not converged:
         notes.append("the foreground selection did not settle; the estimate may be unstable")
@@ -183,8 +239,18 @@ def _findings(fit: LineFit, fg: Foreground, length: float,
                   else "try the smooth model")
         notes.append(f"the exponential model explains only {fit.r_squared:.0%} of the depth variation: "
                      f"the stack may not decay exponentially ({advice})")
-    if math.isfinite(length) and (math.isinf(interval[1]) or interval[1] > 2 * interval[0]):
+    interval = uncertainty.interval
+    if math.isfinite(length) and math.isinf(interval[1]):
+        notes.append("the 95 % interval on the length is open-ended: the data cannot exclude "
+                     "no attenuation")
+    elif math.isfinite(length) and interval[1] > 2 * interval[0]:
         notes.append("the 95 % interval on the length is wide: the length is poorly determined")
+    if uncertainty.n_failed:
+        notes.append(f"{uncertainty.n_failed} of {uncertainty.n_resamples} tile resamples could not "
+                     "be fitted and were left out of the interval")
+    if not uncertainty.n_resamples:
+        notes.append("the interval covers only the scatter of slices about the fit, not which "
+                     "structures lie at which depth: it is usually too narrow")
     return notes
 
 
@@ -215,6 +281,8 @@ def estimate_attenuation(
     offset: float | None = None,
     smoothing_um: float | None = None,
     lateral_step: int | None = None,
+    n_resamples: int = DEFAULT_RESAMPLES,
+    seed: int = 0,
     progress: Callable[[int, int], None] | None = None,
 ) -> AttenuationFit:
     """Measure the attenuation of the foreground signal with depth.
@@ -223,8 +291,11 @@ def estimate_attenuation(
     that slice's background, so it does not depend on how much structure a
     slice holds. The background is a sigma-clipped mean of the dim voxels
     (unbiased by shot noise, see :mod:`viewer_plugin.kernels.primitives.background`). The
-    foreground is chosen with one Otsu threshold on the *corrected* stack;
-    because that depends on the correction, selection and fit alternate
+    foreground is chosen with one threshold on the *corrected* stack, pinned
+    to the brightest slice (15 of its corrected background standard
+    deviations; slices whose corrected noise exceeds 3 times that slice's
+    are not measured); because the selection depends on the correction,
+    selection and fit alternate
     until the gains change by less than 0.01 % (or by less than 1 % after
     16 passes, when the loop hops between two nearly equal selections). The
     measurement uses a lateral sample (every *lateral_step*-th row and column).
@@ -252,9 +323,16 @@ def estimate_attenuation(
     smoothing_um : float, optional
         Kernel standard deviation of the smooth model; default a tenth of the depth range.
     lateral_step : int, optional
-        Lateral sampling step; default gives about 65 000 voxels per slice.
+        Lateral sampling step; default gives about 16 000 voxels per slice.
+    n_resamples : int
+        Tile resamples for the interval on the length (see Notes); 0 gives
+        the fit's own Student-t interval instead, which covers the scatter
+        of slices about the line only and is far too narrow for most stacks.
+    seed : int
+        Seed of the resampling: the same seed gives the same interval.
     progress : callable, optional
-        ``progress(done, total)``, may raise :class:`~viewer_plugin.kernels.Cancelled`.
+        ``progress(done, total)``, also during the resampling; may raise
+        :class:`~viewer_plugin.kernels.Cancelled` to stop.
 
     Returns
     -------
@@ -265,8 +343,9 @@ def estimate_attenuation(
     ------
     ParameterError
         For a stack that is not 3-D or has fewer than 3 slices, z_step <= 0,
-        an unknown model, a mask of the wrong shape, an all-NaN stack, or a
-        stack without foreground brighter than its background.
+        an unknown model, a mask of the wrong shape, n_resamples or seed
+        below 0, an all-NaN stack, or a stack without foreground brighter
+        than its background.
 
     Warns
     -----
@@ -275,9 +354,17 @@ def estimate_attenuation(
 
     Notes
     -----
-    The 95 % interval comes from the covariance of the weighted log-linear
-    fit scaled by its residual variance (as ``scipy.optimize.curve_fit`` with
-    ``absolute_sigma=False``), so slices that do not follow the model widen it.
+    The 95 % interval on the length accounts for the randomness of the
+    structure: the sampled lateral field is cut into up to 8 x 8 tiles, the
+    tiles are resampled with replacement *n_resamples* times (a block
+    bootstrap [5]_), and every resample runs the whole select-and-fit loop
+    again. The interval is the bias-corrected and accelerated (BCa)
+    interval of the resampled decay rates [6]_ (the percentile interval
+    when BCa cannot be formed), inverted into lengths; it is open to
+    infinity when the data cannot exclude "no attenuation". It does not
+    include the uncertainty of the slice backgrounds (measured once), and no
+    resampling of one field can include a change of the structure's own
+    brightness with depth that the whole field shares.
     Corrected intensities are relative, not calibrated, and deep slices
     carry amplified noise; in one-photon imaging the length also includes
     bleaching during acquisition.
@@ -291,6 +378,9 @@ def estimate_attenuation(
            light attenuation with depth in 3D fluorescence microscopy",
            J Microsc 214(3):297-314, 2004.
     .. [4] N. Otsu, IEEE Trans SMC 9(1):62-66, 1979 (used only for noise-free data).
+    .. [5] H. R. Künsch, Ann Stat 17:1217-1241, 1989 (resampling blocks of dependent data).
+    .. [6] B. Efron, J Am Stat Assoc 82:171-185, 1987; Efron & Tibshirani,
+           An Introduction to the Bootstrap, 1993.
 
     Examples
     --------
@@ -310,11 +400,14 @@ def estimate_attenuation(
         offset = check_number(offset, name="offset")
     if smoothing_um is not None:
         smoothing_um = check_number(smoothing_um, name="smoothing_um", low=0, low_open=True)
+    n_resamples = check_int(n_resamples, name="n_resamples", low=0)
+    seed = check_int(seed, name="seed", low=0)
     moved = depth_first(stack, axis)
     step = None if lateral_step is None else check_int(lateral_step, name="lateral_step", low=1)
-    total = profile_steps(moved) + (MAX_ITERATIONS if model == "smooth" else 0) + 1
+    total = (profile_steps(moved) + (MAX_ITERATIONS if model == "smooth" else 0)
+             + (PROGRESS_STEPS if n_resamples else 0) + 1)
     measured = measure_depth_profile(moved, z_step=z_step, mask=moved_mask(mask, stack.shape, axis),
-                                     step=step, progress=progress, total=total)
+                                     step=step, progress=progress, total=total, rule="pinned")
     if measured.nan_fraction > 0:
         warnings.warn(f"estimate_attenuation: {measured.nan_fraction:.2%} of the sampled voxels are "
                       "NaN or infinite and were ignored", AttenuationWarning, stacklevel=2)
@@ -322,16 +415,22 @@ def estimate_attenuation(
     fg, gain, n_iter, converged = loop.foreground, loop.gain, loop.n_iterations, loop.converged
     exp_fit = fit_log_profile(depth, fg.signal, fg.sem)
     length = decay_length(exp_fit.slope)
-    interval = models.length_interval(exp_fit)
+    field = measured.selection.field_fraction(fg, gain)
     curve = np.exp(exp_fit.intercept + exp_fit.slope * depth)
+    done = measured.done
     if model == "smooth":
         bandwidth = smoothing_um if smoothing_um is not None else max(depth[-1] / 10.0, z_step)
-        smooth = iterate_foreground(measured.above, measured.background.sigma, depth,
+        # a smooth gain curve moves the brightest slice's own gain from pass to pass, so a
+        # threshold pinned to that slice can hop: the smooth loop follows the noisiest slice
+        smooth = iterate_foreground(measured.selection.with_rule("noisiest"), depth,
                                     partial(models.smooth_gain, bandwidth=bandwidth),
-                                    progress=progress, done=measured.done, total=total)
+                                    progress=progress, done=done, total=total)
         fg, gain, curve = smooth.foreground, smooth.gain, smooth.curve
         n_iter += smooth.n_iterations
         converged = converged and smooth.converged
+        done += MAX_ITERATIONS
+    interval = length_uncertainty(measured.selection, depth, loop, exp_fit, n_resamples=n_resamples,
+                                  seed=seed, progress=progress, done=done, total=total)
     sample, background = measured.sample, measured.background
     if offset is None:
         offset = models.estimate_offset(background.level, curve, float(np.nanmin(sample)))
@@ -345,7 +444,9 @@ def estimate_attenuation(
         warnings.warn(f"estimate_attenuation: {notes[0]}", AttenuationWarning, stacklevel=2)
     report_progress(progress, total, total)
     return AttenuationFit(
-        model=model, length_um=length, length_interval_um=interval, r_squared=exp_fit.r_squared,
+        model=model, length_um=length, length_interval_um=interval.interval,
+        interval_method=interval.method, n_resamples=interval.n_resamples,
+        n_tiles=interval.n_tiles, seed=seed, field_fraction=field, r_squared=exp_fit.r_squared,
         offset=float(offset), profile=fg.signal, profile_sem=fg.sem, model_profile=curve,
         gain=np.asarray(gain, dtype=np.float64), depth_um=depth, background=background.level,
         foreground_fraction=fg.fraction, threshold=fg.threshold, z_step=z_step, axis=axis,

@@ -11,17 +11,26 @@ settle (:func:`iterate_foreground`). The stack is read once, as a lateral
 sample (every ``step``-th row and column of each slice,
 :func:`lateral_sample`); all iterations work on that sample, with each
 slice's sigma-clipped background (:func:`.background.rows_background`)
-subtracted.
+subtracted. :class:`ForegroundSample` keeps the voxels that can ever be
+foreground sorted per slice, with the lateral tile each lies in, so that a
+measurement is a binary search per slice -- also with the tiles weighted by
+a bootstrap resample (and slices counted as often as it drew them), which
+re-runs the whole select-and-fit loop cheaply. Two threshold rules
+(:meth:`ForegroundSample.threshold`): "pinned" to the brightest slice (the
+attenuation estimate) and "noisiest" (following the noisiest measured slice,
+the default of :func:`measure_depth_profile`).
 
 Where it is used: :func:`~viewer_plugin.kernels.estimate_attenuation` (its
-profile, with the exponential model and with its smooth model) and the
-depth check of :func:`~viewer_plugin.kernels.estimate_bleaching` for a
-single stack (:func:`measure_depth_profile`), so that the two read the same
-decay from one stack.
+profile, with the exponential model and with its smooth model, and its
+bootstrap interval) and the depth check of
+:func:`~viewer_plugin.kernels.estimate_bleaching` for a single stack
+(:func:`measure_depth_profile`, "noisiest" rule until that check is validated
+with the pinned one).
 """
 
 from __future__ import annotations
 
+import copy
 import math
 import warnings
 from dataclasses import dataclass
@@ -41,7 +50,11 @@ __all__ = [
     "DepthProfile",
     "Foreground",
     "ForegroundLoop",
+    "ForegroundSample",
     "MAX_ITERATIONS",
+    "PINNED_GROWTH",
+    "THRESHOLD_RULES",
+    "TILES_PER_SIDE",
     "auto_step",
     "exponential_gain",
     "iterate_foreground",
@@ -49,6 +62,8 @@ __all__ = [
     "measure_depth_profile",
     "moved_mask",
     "profile_steps",
+    "tile_index",
+    "Weighting",
 ]
 
 #: Wanted number of sampled voxels per slice (the lateral step is chosen for it).
@@ -61,13 +76,25 @@ MIN_FOREGROUND = 10
 MAX_SELECTION_GAIN = 50.0
 
 #: Slices whose gain-corrected background noise exceeds this multiple of the
-#: brightest slice's are too noisy after correction to be measured.
+#: brightest slice's are too noisy after correction to be measured ("noisiest" rule).
 MAX_NOISE_GROWTH = 5.0
 
-#: Foreground must exceed this many (corrected) background standard deviations.
-#: Common practice is 3; 5 is used because photon-counting backgrounds at low
-#: counts (a few photons of haze) have a much heavier bright tail than a Gaussian.
+#: The same for the "pinned" rule, whose threshold is NOISE_SIGMAS times this multiple
+#: of the brightest slice's corrected noise (see ForegroundSample.threshold).
+PINNED_GROWTH = 3.0
+
+#: How the foreground threshold follows the gains (ForegroundSample.threshold).
+THRESHOLD_RULES = ("noisiest", "pinned")
+
+#: Foreground must exceed this many (corrected) background standard deviations of the
+#: noisiest slice that is measured. Common practice is 3; 5 is used because
+#: photon-counting backgrounds at low counts (a few photons of haze), and a
+#: photomultiplier's random gain, have a much heavier bright tail than a Gaussian.
 NOISE_SIGMAS = 5.0
+
+#: Lateral tiles per side of the sample: the units a bootstrap resamples (up to 4 x 4 = 16).
+#: Large tiles, because structures such as fibres can cross much of the field.
+TILES_PER_SIDE = 4
 
 #: Iteration limit and tolerance (largest change of ln gain) of the select-and-fit loop.
 MAX_ITERATIONS = 40
@@ -108,8 +135,9 @@ class DepthProfile:
     """Outcome of :func:`measure_depth_profile`: the sample, its backgrounds and the loop.
 
     ``above`` is the sample minus each slice's background level;
-    ``nan_fraction`` the share of sampled voxels that were NaN or infinite
-    without a mask (0 with a mask); ``done`` the progress steps used.
+    ``selection`` the same prepared for repeated measurements (and
+    resampling); ``nan_fraction`` the share of sampled voxels that were NaN
+    or infinite without a mask (0 with a mask); ``done`` the progress steps used.
     """
 
     sample: np.ndarray
@@ -120,6 +148,7 @@ class DepthProfile:
     loop: ForegroundLoop
     nan_fraction: float
     done: int
+    selection: "ForegroundSample"
 
 
 def auto_step(plane_shape: tuple[int, ...]) -> int:
@@ -185,72 +214,220 @@ def brightest_slice(above: np.ndarray) -> int:
     return int(np.nanargmax(bright)) if np.isfinite(bright).any() else 0
 
 
-def measure_foreground(above: np.ndarray, gain: np.ndarray, noise: np.ndarray,
-                       reference: int = 0) -> Foreground:
-    """Mean above-background intensity of the foreground voxels of every row.
+def tile_index(plane_shape: tuple[int, int], per_side: int = TILES_PER_SIDE) -> tuple[np.ndarray, int]:
+    """Tile number of every sampled lateral position (row-major), and the number of tiles.
 
-    *above* is the sample minus each slice's background, *noise* each
-    slice's background standard deviation. The foreground is chosen on the
-    *corrected* sample ``above * gain`` with one threshold for the whole
-    stack, so that a correct gain selects the same part of the structure at
-    every depth. The threshold is :data:`NOISE_SIGMAS` times the largest
-    corrected background noise of any slice: low enough to take in most of
-    the structure (a threshold far out in the bright tail makes the
-    select-and-fit loop drift), high enough that amplified noise of deep
-    slices does not pass as dim foreground (which would pull their signal
-    down and feed a runaway correction). Slices whose corrected noise is
-    more than :data:`MAX_NOISE_GROWTH` times that of the *reference* slice
-    (the brightest, see :func:`brightest_slice`), or that would need
-    a gain above :data:`MAX_SELECTION_GAIN`, are not measured and do not set
-    the threshold (otherwise one very deep slice would lift it above all
-    structure); which slices these are depends on gains and noise only, not
-    on the signal, so leaving them out does not bias the rest. Noise-free data
-    (zero spread) use Otsu's threshold instead. The signal itself is
-    measured on *above*.
+    The sampled plane is cut into at most *per_side* x *per_side* rectangular
+    tiles of equal size (the last row and column of tiles may be smaller).
+
+    Examples
+    --------
+    >>> tiles, n = tile_index((4, 6), per_side=2)
+    >>> n, tiles.reshape(4, 6)[:, ::2].tolist()
+    (4, [[0, 0, 1], [0, 0, 1], [2, 2, 3], [2, 2, 3]])
     """
-    scaled = noise * gain
-    usable = gain <= MAX_SELECTION_GAIN
-    if np.isfinite(scaled).any():
+    ny, nx = (int(v) for v in plane_shape)
+    rows = np.arange(ny) // -(-ny // min(per_side, max(ny, 1)))
+    cols = np.arange(nx) // -(-nx // min(per_side, max(nx, 1)))
+    n_cols = int(cols[-1]) + 1 if nx else 1
+    tiles = (rows[:, None] * n_cols + cols[None, :]).ravel()
+    return tiles.astype(np.int64), (int(rows[-1]) + 1 if ny else 1) * n_cols
+
+
+@dataclass(frozen=True)
+class Weighting:
+    """How often each lateral tile and each slice counts (a bootstrap resample), prepared.
+
+    ``count``, ``total`` and ``square`` are the candidates' weighted suffix
+    sums (see :class:`ForegroundSample`), ``finite`` the weighted number of
+    finite voxels of each slice, ``slices`` each slice's multiplicity in the
+    fit (None: every slice once).
+    """
+
+    count: np.ndarray
+    total: np.ndarray
+    square: np.ndarray
+    finite: np.ndarray
+    slices: np.ndarray | None = None
+
+
+class ForegroundSample:
+    """The lateral sample, prepared for repeated foreground measurements.
+
+    Built once from the sample above background (*above*, one row per
+    slice, ``plane_shape`` lateral positions) and each slice's background
+    standard deviation (*noise*). The voxels that can ever be foreground
+    (above :data:`NOISE_SIGMAS` times their slice's noise, or above 0 for
+    noise-free slices) are kept sorted by value within each slice, with the
+    lateral tile they lie in (:func:`tile_index`). A measurement for given
+    gains then needs only a binary search per slice, also when the tiles are
+    weighted (counted as often as a bootstrap resample drew them).
+    """
+
+    def __init__(self, above: np.ndarray, noise: np.ndarray, plane_shape: tuple[int, int], *,
+                 rule: str = "noisiest", growth: float | None = None) -> None:
+        self.above = above
+        self.rule = rule
+        self.growth = float(growth if growth is not None else
+                            PINNED_GROWTH if rule == "pinned" else MAX_NOISE_GROWTH)
+        self.noise = np.asarray(noise, dtype=np.float64)
+        self.reference = brightest_slice(above)
+        self.tiles, self.n_tiles = tile_index(plane_shape)
+        floor = np.where(self.noise > 0, NOISE_SIGMAS * self.noise, 0.0)
         with np.errstate(invalid="ignore"):
-            usable &= ~(scaled > MAX_NOISE_GROWTH * scaled[reference])
-    gain32 = gain.astype(np.float32)
-    corrected_noise = np.where(usable, scaled, np.nan)
-    threshold = float("nan")
-    if np.isfinite(corrected_noise).any():
-        threshold = NOISE_SIGMAS * float(np.nanmax(corrected_noise))
-    if not threshold > 0:
-        part = above[usable]
-        threshold = otsu_threshold(part[:, :: max(1, part.size // 2**17)] * gain32[usable, None])
-    count, total, square, n_finite = _foreground_sums(above, gain32, np.float32(threshold))
-    safe = np.maximum(count, 1)
-    mean = total / safe
-    var = np.maximum(square / safe - mean**2, 0.0) * safe / np.maximum(safe - 1, 1)
-    ok = (count >= MIN_FOREGROUND) & usable
-    signal = np.where(ok, mean, np.nan)
-    sem = np.where(ok, np.sqrt(var / safe), np.nan)
-    fraction = count / np.maximum(n_finite, 1)
-    return Foreground(signal=signal, sem=sem, fraction=fraction.astype(np.float64), threshold=threshold)
+            rows, cols = np.nonzero(above > floor[:, None].astype(np.float32))
+        values = above[rows, cols].astype(np.float64)
+        order = np.lexsort((values, rows))
+        self.values = values[order]
+        self.columns = cols[order].astype(np.int64)
+        self.starts = np.searchsorted(rows[order], np.arange(above.shape[0] + 1)).astype(np.int64)
+        onehot = np.zeros((above.shape[1], self.n_tiles))
+        onehot[np.arange(above.shape[1]), self.tiles] = 1.0
+        self.finite_tiles = np.isfinite(above).astype(np.float64) @ onehot
+        self.lateral_finite = int(np.isfinite(above).any(axis=0).sum())
+        self.unweighted = self.weighting()
+
+    def with_rule(self, rule: str) -> "ForegroundSample":
+        """The same prepared sample with another threshold rule (and its default growth)."""
+        other = copy.copy(self)
+        other.rule = rule
+        other.growth = PINNED_GROWTH if rule == "pinned" else MAX_NOISE_GROWTH
+        return other
+
+    def weighting(self, tiles: np.ndarray | None = None, slices: np.ndarray | None = None) -> Weighting:
+        """Each tile counted *tiles[t]* times, each slice *slices[z]* times (default: once)."""
+        w = np.ones(self.n_tiles) if tiles is None else np.asarray(tiles, dtype=np.float64)
+        count, total, square = _suffix_sums(self.values, self.tiles[self.columns], self.starts, w)
+        return Weighting(count, total, square, self.finite_tiles @ w,
+                         None if slices is None else np.asarray(slices, dtype=np.float64))
+
+    def threshold(self, gain: np.ndarray) -> tuple[float, np.ndarray]:
+        """The foreground threshold on the corrected sample, and the slices that can be measured.
+
+        A slice can be measured while its corrected background noise is at
+        most *growth* times that of the reference (brightest) slice and its
+        gain at most :data:`MAX_SELECTION_GAIN`. The threshold is
+        :data:`NOISE_SIGMAS` times
+
+        * "noisiest": the largest corrected noise among the slices that can
+          be measured (growth :data:`MAX_NOISE_GROWTH`); low enough to take in
+          most of the structure, but it rises with the estimated attenuation
+          (the noisiest slice's gain grows with it) and feeds back into the
+          estimate: with a photomultiplier's heavy-tailed noise that loop ran
+          away to about 1.6 times the true attenuation on the demo;
+        * "pinned": *growth* (:data:`PINNED_GROWTH`) times the reference
+          slice's corrected noise, fixed to the reference slice whatever the
+          deeper slices' gains; every measured slice still sees a threshold of
+          at least :data:`NOISE_SIGMAS` of its own noise.
+
+        Noise-free data (zero spread) use Otsu's threshold of the corrected sample.
+        """
+        scaled = self.noise * gain
+        reference = float(scaled[self.reference])
+        usable = gain <= MAX_SELECTION_GAIN
+        with np.errstate(invalid="ignore"):
+            usable &= ~(scaled > self.growth * reference)
+        if self.rule == "pinned":
+            threshold = NOISE_SIGMAS * self.growth * reference
+        else:
+            corrected = np.where(usable, scaled, np.nan)
+            threshold = (NOISE_SIGMAS * float(np.nanmax(corrected)) if np.isfinite(corrected).any()
+                         else math.nan)
+        if not threshold > 0:
+            part = self.above[usable]
+            gain32 = gain.astype(np.float32)[usable, None]
+            threshold = otsu_threshold(part[:, :: max(1, part.size // 2**17)] * gain32)
+        return threshold, usable
+
+    def measure(self, gain: np.ndarray, weighted: Weighting | None = None) -> Foreground:
+        """Mean above-background intensity of the foreground voxels of every slice.
+
+        The foreground is chosen on the *corrected* sample ``above * gain``
+        with one threshold for the whole stack (:meth:`threshold`), so that
+        a correct gain selects the same part of the structure at every
+        depth; the threshold is low enough to take in most of the structure
+        (a threshold far out in the bright tail makes the select-and-fit
+        loop drift), high enough that amplified noise of deep slices does
+        not pass as dim foreground. Which slices cannot be measured depends
+        on gains and noise only, not on the signal, so leaving them out does
+        not bias the rest. The signal itself is measured on *above*, with
+        the tiles weighted as in *weighted* (default: each once); a slice
+        counted ``m`` times has its standard error divided by ``sqrt(m)`` (its
+        weight in a fit times ``m``), and a slice not drawn is not measured.
+        """
+        weighted = self.unweighted if weighted is None else weighted
+        threshold, usable = self.threshold(gain)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            cutoffs = np.where(gain > 0, threshold / gain, np.inf)
+        count, total, square = _sums_above(self.values, self.starts, weighted.count, weighted.total,
+                                           weighted.square, cutoffs)
+        safe = np.maximum(count, 1.0)
+        mean = total / safe
+        var = np.maximum(square / safe - mean**2, 0.0) * safe / np.maximum(safe - 1, 1)
+        ok = (count >= MIN_FOREGROUND) & usable
+        if weighted.slices is not None:
+            ok &= weighted.slices > 0
+            safe = safe * np.maximum(weighted.slices, 1e-12)
+        signal = np.where(ok, mean, np.nan)
+        sem = np.where(ok, np.sqrt(var / safe), np.nan)
+        fraction = count / np.maximum(weighted.finite, 1.0)
+        return Foreground(signal=signal, sem=sem, fraction=fraction, threshold=threshold)
+
+    def field_fraction(self, fg: Foreground, gain: np.ndarray) -> float:
+        """Share of the sampled lateral positions holding foreground in at least one measured slice."""
+        if not self.lateral_finite:
+            return 0.0
+        with np.errstate(divide="ignore", invalid="ignore"):
+            cutoffs = np.where(gain > 0, fg.threshold / gain, np.inf)
+        used = np.zeros(self.above.shape[1], dtype=bool)
+        for z in np.flatnonzero(np.isfinite(fg.signal)):
+            lo, hi = self.starts[z], self.starts[z + 1]
+            first = lo + int(np.searchsorted(self.values[lo:hi], cutoffs[z], side="right"))
+            used[self.columns[first:hi]] = True
+        return float(used.sum()) / self.lateral_finite
 
 
 @numba.njit(cache=True, nogil=True)
-def _foreground_sums(above, gain, threshold):  # pragma: no cover - compiled
-    """Per row: foreground count, sum, sum of squares, finite count."""
-    n_rows, n_cols = above.shape
-    count = np.zeros(n_rows, np.int64)
-    n_finite = np.zeros(n_rows, np.int64)
-    total = np.zeros(n_rows)
-    square = np.zeros(n_rows)
-    for r in range(n_rows):
-        g = gain[r]
-        for c in range(n_cols):
-            v = above[r, c]
-            if np.isfinite(v):
-                n_finite[r] += 1
-                if v * g > threshold:
-                    count[r] += 1
-                    total[r] += v
-                    square[r] += np.float64(v) * v
-    return count, total, square, n_finite
+def _suffix_sums(values, tiles, starts, weights):  # pragma: no cover - compiled
+    """Per slice segment (values ascending): weighted count, sum and sum of squares from i to its end."""
+    n = values.size
+    count = np.zeros(n)
+    total = np.zeros(n)
+    square = np.zeros(n)
+    for s in range(starts.size - 1):
+        a0 = 0.0
+        a1 = 0.0
+        a2 = 0.0
+        for i in range(starts[s + 1] - 1, starts[s] - 1, -1):
+            w = weights[tiles[i]]
+            v = values[i]
+            a0 += w
+            a1 += w * v
+            a2 += w * v * v
+            count[i] = a0
+            total[i] = a1
+            square[i] = a2
+    return count, total, square
+
+
+@numba.njit(cache=True, nogil=True)
+def _sums_above(values, starts, count, total, square, cutoffs):  # pragma: no cover - compiled
+    """Per slice: weighted count, sum and sum of squares of the values above its cutoff."""
+    m = starts.size - 1
+    c = np.zeros(m)
+    t = np.zeros(m)
+    q = np.zeros(m)
+    for s in range(m):
+        lo = starts[s]
+        hi = starts[s + 1]
+        if hi == lo or not cutoffs[s] < np.inf:
+            continue
+        first = lo + np.searchsorted(values[lo:hi], cutoffs[s], side="right")
+        if first < hi:
+            c[s] = count[first]
+            t[s] = total[first]
+            q[s] = square[first]
+    return c, t, q
 
 
 def exponential_gain(depth: np.ndarray, fg: Foreground) -> tuple[np.ndarray, np.ndarray]:
@@ -268,20 +445,22 @@ def exponential_gain(depth: np.ndarray, fg: Foreground) -> tuple[np.ndarray, np.
     return gain, curve
 
 
-def iterate_foreground(above: np.ndarray, noise: np.ndarray, depth: np.ndarray,
-                       gain_model: GainModel, *, progress: Progress = None, done: int = 0,
-                       total: int = 1) -> ForegroundLoop:
+def iterate_foreground(sample: ForegroundSample, depth: np.ndarray, gain_model: GainModel, *,
+                       weighted: Weighting | None = None, start: np.ndarray | None = None,
+                       progress: Progress = None, done: int = 0, total: int = 1) -> ForegroundLoop:
     """Select foreground on the corrected sample, re-fit *gain_model*, until the gains settle.
 
-    The loop stops when the largest change of ``ln gain`` is below 1e-4, or
-    below 1 % after 16 passes (a loop that hops between two nearly equal
-    selections is damped after 8 passes); at most :data:`MAX_ITERATIONS`
-    passes, one progress step each (``done + pass`` of *total*).
+    The loop starts from gains of 1 (or *start*) and stops when the largest
+    change of ``ln gain`` is below 1e-4, or below 1 % after 16 passes (a
+    loop that hops between two nearly equal selections is damped after 8
+    passes); at most :data:`MAX_ITERATIONS` passes, one progress step each
+    (``done + pass`` of *total*). *weighted* counts tiles and slices as a
+    bootstrap resample drew them (:meth:`ForegroundSample.weighting`).
     """
-    gain = np.ones_like(depth)
+    weighted = sample.unweighted if weighted is None else weighted
+    gain = np.ones_like(depth) if start is None else np.asarray(start, dtype=np.float64)
     curve = np.full(depth.shape, np.nan)
-    reference = brightest_slice(above)
-    fg = measure_foreground(above, gain, noise, reference)
+    fg = sample.measure(gain, weighted)
     converged = False
     iteration = 0
     for iteration in range(1, MAX_ITERATIONS + 1):
@@ -296,7 +475,7 @@ def iterate_foreground(above: np.ndarray, noise: np.ndarray, depth: np.ndarray,
         if change < TOLERANCE or (iteration > 2 * DAMP_AFTER and change < LOOSE_TOLERANCE):
             converged = True
             break
-        fg = measure_foreground(above, gain, noise, reference)
+        fg = sample.measure(gain, weighted)
     return ForegroundLoop(fg, gain, curve, iteration, converged)
 
 
@@ -335,6 +514,7 @@ def measure_depth_profile(
     progress: Progress = None,
     total: int | None = None,
     name: str = "stack",
+    rule: str = "noisiest",
 ) -> DepthProfile:
     """Foreground profile of a depth-first 3-D stack with the exponential select-and-fit loop.
 
@@ -352,6 +532,11 @@ def measure_depth_profile(
         ``progress(done, total)``; *total* defaults to :func:`profile_steps`.
     name : str
         The parameter named in error messages.
+    rule : {"noisiest", "pinned"}
+        How the foreground threshold follows the gains
+        (:meth:`ForegroundSample.threshold`); "pinned" when the stack's
+        structure hardly rises above the background spread falls back to
+        a threshold of :data:`NOISE_SIGMAS` times the reference slice's noise.
 
     Returns
     -------
@@ -370,9 +555,16 @@ def measure_depth_profile(
     depth = np.arange(moved.shape[0], dtype=np.float64) * z_step
     background = rows_background(sample)
     above = sample - background.level[:, None].astype(np.float32)
+    plane = (-(-int(moved.shape[1]) // step), -(-int(moved.shape[2]) // step))
+    selection = ForegroundSample(above, background.sigma, plane, rule=rule)
     done = _chunk_count(moved)
-    loop = iterate_foreground(above, background.sigma, depth, exponential_gain, progress=progress,
-                              done=done, total=total)
+    loop = iterate_foreground(selection, depth, exponential_gain, progress=progress, done=done,
+                              total=total)
+    if rule == "pinned" and int(np.isfinite(loop.foreground.signal).sum()) < 3:
+        # dense texture: hardly anything rises that far above the background spread
+        selection = ForegroundSample(above, background.sigma, plane, rule=rule, growth=1.0)
+        loop = iterate_foreground(selection, depth, exponential_gain, done=done, total=total)
     _check_structure(loop.foreground, background.sigma, name)
     return DepthProfile(sample=sample, above=above, background=background, depth=depth, step=step,
-                        loop=loop, nan_fraction=nan_fraction, done=done + MAX_ITERATIONS)
+                        loop=loop, nan_fraction=nan_fraction, done=done + MAX_ITERATIONS,
+                        selection=selection)
