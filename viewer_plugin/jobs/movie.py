@@ -392,18 +392,21 @@ def _gif_delay_cs(fps: float) -> int:
 
 def _writer(fmt: str, fps: float, frames: Iterator[np.ndarray]) -> Callable[[Path], None]:
     def write(tmp: Path) -> None:
+        # every frame is rendered before the encoder starts: a cancel then never races an
+        # encoder process that is still finishing the temporary file
+        rendered = list(frames)
         if fmt == "mp4":
             import imageio.v2 as iio
 
             with iio.get_writer(tmp, format="FFMPEG", mode="I", fps=fps, codec="libx264",
                                 quality=8, pixelformat="yuv420p", macro_block_size=BLOCK_PX,
                                 ffmpeg_log_level="error") as writer:
-                for frame in frames:
+                for frame in rendered:
                     writer.append_data(frame)
         else:
             import imageio.v3 as iio
 
-            iio.imwrite(tmp, np.stack(list(frames)), extension=".gif", loop=0,
+            iio.imwrite(tmp, np.stack(rendered), extension=".gif", loop=0,
                         duration=10 * _gif_delay_cs(fps))
     return write
 

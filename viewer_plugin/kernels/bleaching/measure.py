@@ -27,6 +27,7 @@ from ..._shared.validation import fail, is_dask
 from ..primitives.background import background_level, clipped_stats, rows_background
 from ..primitives.chunks import depth_chunks, plane_nbytes
 from ..primitives.foreground import (
+    ForegroundSample,
     MAX_ITERATIONS,
     MIN_FOREGROUND,
     auto_step,
@@ -298,8 +299,8 @@ def pair_profiles(forward: Any, reverse: Any, *, z_step: float, progress: Progre
     sel_bg = rows_background(selection)
     selection -= sel_bg.level[:, None]
     depth = np.arange(n, dtype=np.float64) * z_step
-    loop = iterate_foreground(selection, sel_bg.sigma, depth, exponential_gain,
-                              progress=progress, done=2 * chunks, total=total)
+    loop = iterate_foreground(ForegroundSample(selection, sel_bg.sigma, plane), depth,
+                              exponential_gain, progress=progress, done=2 * chunks, total=total)
     finite = np.isfinite(above_f) & np.isfinite(above_r)
     with np.errstate(invalid="ignore"):
         mask = finite & (selection * loop.gain[:, None] > loop.foreground.threshold)
