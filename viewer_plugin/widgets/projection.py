@@ -13,13 +13,15 @@ from typing import Any
 import numpy as np
 from magicgui.widgets import CheckBox, ComboBox, FloatSpinBox, Label, PushButton
 
-from ..jobs.choices import COLOUR_MAPS, DEFAULT_CMAP, OCCLUSION_NOTE
+from ..jobs.choices import CMAP_KIND, COLOUR_MAPS, DEPTH_MAP_CMAPS, OCCLUSION_NOTE
 from ._dock import StackDock, in_dock_words, layer_stack
 
 __all__ = ["DepthColourWidget", "OcclusionWidget", "PeakDepthWidget", "ProjectionDock"]
 
-#: Colour maps of the depth map and the occlusion colour, from the shared list (no rainbow maps).
-DEPTH_MAP_COLOURS = tuple(name for label, name in COLOUR_MAPS if "rainbow" not in label)
+#: Colours of the occlusion rendering: grey, or depth through a map of the shared list
+#: (constant lightness first, no rainbow-like maps).
+OCCLUSION_COLOURS = [("grey", None)] + [
+    (f"depth ({name})", name) for _, name in COLOUR_MAPS if CMAP_KIND[name] != "rainbow"]
 
 
 class ProjectionDock(StackDock):
@@ -102,8 +104,10 @@ class PeakDepthWidget(ProjectionDock):
     tab_title = "Peak depth"
 
     def _add_options(self) -> None:
-        self.depth_cmap = ComboBox(label="Depth map colours", choices=list(DEPTH_MAP_COLOURS),
-                                   value=DEFAULT_CMAP)
+        self.depth_cmap = ComboBox(label="Depth map colours", choices=list(DEPTH_MAP_CMAPS),
+                                   value=DEPTH_MAP_CMAPS[0],
+                                   tooltip="The depth map shows one quantity: a map whose "
+                                           "lightness rises steadily with depth suits it")
         self.hide_background = CheckBox(
             text="Blank depth where peak \u2264 lower contrast limit", value=False,
             tooltip="Pixels whose peak is at or below the layer's lower contrast limit get no "
@@ -165,9 +169,9 @@ class OcclusionWidget(ProjectionDock):
                              value="top")
         self.auto_contrast = CheckBox(text="Automatic contrast (percentiles)", value=False,
                                       tooltip="Otherwise the layer's contrast limits are used")
-        self.colour = ComboBox(label="Colour", choices=[("grey", None)] + [
-            (f"depth ({name})", name) for name in DEPTH_MAP_COLOURS[:5]], value=None,
-            tooltip="Grey, or each slice emits the colour of its depth (top and side views)")
+        self.colour = ComboBox(label="Colour", choices=OCCLUSION_COLOURS, value=None,
+                               tooltip="Grey, or each slice emits the colour of its depth (top "
+                                       "and side views)")
         self.side_views = CheckBox(text="Side views along y and along x", value=False)
         self.note = Label(value=OCCLUSION_NOTE)
         self.extend([self.auto_density, self.density, self.view, self.auto_contrast,
