@@ -41,7 +41,10 @@ __all__ = [
     "finish_depth_index",
     "finish_depth_sums",
     "finish_brightness",
+    "brightness_table",
     "finish_colour",
+    "finish_peak_colour",
+    "slice_rows",
     "finish_tint",
 ]
 
@@ -685,24 +688,25 @@ def _brightness_of(x, lo, scale, gamma):
 
 
 @njit(inline="always")
-def _paint(depth, bright, d0, span, lut, out):
-    """out[:] = lut[index(depth)] * bright; black where depth is NaN.
+def _lut_row(depth, d0, span, n):
+    """Entry of an *n*-colour table for *depth* (0 for NaN), the rule of matplotlib's
+    ``Colormap.__call__``: ``clip(floor(t * N), 0, N - 1)``, ``t = clip((depth - d0) / span, 0, 1)``."""
+    t = (depth - d0) / span if depth == depth else 0.0
+    t = _min_ordered(_max_ordered(t, 0.0), 1.0)
+    return min(int(t * n), n - 1)
 
-    ``index = clip(floor(t * N), 0, N - 1)`` with ``t = (depth - d0) / span``
-    clipped to [0, 1] -- the rule of matplotlib's ``Colormap.__call__``.
+
+@njit(inline="always")
+def _paint(depth, bright, d0, span, lut, out, c):
+    """out[c] = lut[index(depth)] * bright; black where depth is NaN. *out* is (cols, 3).
+
+    Written without a branch: a NaN depth paints entry 0 times 0.
     """
-    if depth != depth:
-        out[0] = 0.0
-        out[1] = 0.0
-        out[2] = 0.0
-        return
-    n = lut.shape[0]
-    t = (depth - d0) / span
-    t = min(max(t, 0.0), 1.0)
-    j = min(int(t * n), n - 1)
-    out[0] = lut[j, 0] * bright
-    out[1] = lut[j, 1] * bright
-    out[2] = lut[j, 2] * bright
+    j = _lut_row(depth, d0, span, lut.shape[0])
+    b = bright if depth == depth else 0.0
+    out[c, 0] = lut[j, 0] * b
+    out[c, 1] = lut[j, 1] * b
+    out[c, 2] = lut[j, 2] * b
 
 
 @njit(inline="always")
@@ -776,16 +780,82 @@ def finish_tint(vals, lo, scale, gamma, tint):
 
 
 @njit(**_OPTS)
-def finish_colour(vals, depth, lo, scale, gamma, d0, span, lut, bright, rgb):
+def brightness_table(lo, scale, gamma, table):
+    """``table[x]`` = the float32 brightness of the integer value x (:func:`_brightness_of`).
+
+    For 8/16-bit maxima: one power per possible value instead of one per
+    pixel, and a lookup instead of the arithmetic; the same numbers as
+    computing each pixel.
+    """
+    for x in prange(table.shape[0]):
+        table[x] = np.float32(_brightness_of(x, lo, scale, gamma))
+
+
+def _bright(x, lo, scale, gamma, table):
+    """float32 brightness of *x*: from *table* for integers when it is not empty."""
+
+
+@overload(_bright, inline="always")
+def _bright_impl(x, lo, scale, gamma, table):
+    if isinstance(x, types.Integer):
+        def from_table(x, lo, scale, gamma, table):
+            if table.shape[0] > 0:
+                return table[x]
+            return np.float32(_brightness_of(x, lo, scale, gamma))
+        return from_table
+    return lambda x, lo, scale, gamma, table: np.float32(_brightness_of(x, lo, scale, gamma))
+
+
+@njit(cache=True, nogil=True)
+def slice_rows(z_step, d0, span, n_colours, rows, depths):
+    """Per slice z: the float32 depth ``z * z_step`` and its colour-table entry (:func:`_lut_row`)."""
+    for z in range(rows.shape[0]):
+        d = np.float32(np.float64(z) * z_step)
+        depths[z] = d
+        rows[z] = _lut_row(np.float64(d), d0, span, n_colours)
+
+
+@njit(**_OPTS)
+def finish_peak_colour(vals, idx, lo, scale, gamma, rows, depths, lut, table, depth, bright, rgb):
+    """Depth, brightness and colour of "peak" from the maximum and its slice, in one pass.
+
+    ``depth = depths[index]`` where the maximum exceeds *lo* (NaN elsewhere),
+    ``rgb = lut[rows[index]] * brightness``, with *rows* and *depths* from
+    :func:`slice_rows`: the same numbers as :func:`finish_depth_index`
+    followed by :func:`finish_colour` (below *lo* the brightness is 0), with
+    two lookups per pixel instead of the arithmetic.
+    """
+    nr, nc = vals.shape
+    for r in prange(nr):
+        out = rgb[r]
+        for c in range(nc):
+            x = vals[r, c]
+            i = idx[r, c]
+            k = i if i > 0 else 0
+            depth[r, c] = depths[k] if x > lo else np.float32(np.nan)  # False for NaN
+            b = _bright(x, lo, scale, gamma, table)
+            bright[r, c] = b
+            j = rows[k]
+            b64 = np.float64(b)
+            out[c, 0] = lut[j, 0] * b64
+            out[c, 1] = lut[j, 1] * b64
+            out[c, 2] = lut[j, 2] * b64
+
+
+@njit(**_OPTS)
+def finish_colour(vals, depth, lo, scale, gamma, d0, span, lut, table, bright, rgb):
     """Brightness and ``rgb = lut[index(depth)] * brightness`` (black where depth is NaN).
 
     2-D ``vals`` and float32 ``depth`` (rows, cols); float32 outputs
     ``bright`` (rows, cols) and ``rgb`` (rows, cols, 3). The colour is taken
-    from the stored float32 values, so it matches what is returned.
+    from the stored float32 values, so it matches what is returned. *table*
+    (float32, from :func:`brightness_table`, or empty) gives the brightness
+    of integer values.
     """
     nr, nc = vals.shape
     for r in prange(nr):
+        out = rgb[r]
         for c in range(nc):
-            b = np.float32(_brightness_of(vals[r, c], lo, scale, gamma))
+            b = _bright(vals[r, c], lo, scale, gamma, table)
             bright[r, c] = b
-            _paint(np.float64(depth[r, c]), np.float64(b), d0, span, lut, rgb[r, c])
+            _paint(np.float64(depth[r, c]), np.float64(b), d0, span, lut, out, c)

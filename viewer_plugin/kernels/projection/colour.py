@@ -56,7 +56,7 @@ def resolve_lut(cmap: Any, *, name: str = "cmap") -> np.ndarray:
     if isinstance(cmap, str):
         cmap = _named_table(cmap, name)
     if hasattr(cmap, "N") and callable(cmap):
-        return np.asarray(cmap(np.arange(int(cmap.N)))[:, :3], dtype=np.float64)
+        return np.ascontiguousarray(cmap(np.arange(int(cmap.N)))[:, :3], dtype=np.float64)
     try:
         table = np.asarray(cmap, dtype=np.float64)
     except (TypeError, ValueError):

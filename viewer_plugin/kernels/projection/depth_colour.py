@@ -146,9 +146,36 @@ def _finish_colour(vals: np.ndarray, depth: np.ndarray, lo: float, scale: float,
     rgb = np.empty(depth.shape + (3,), np.float32)
     d0, d1 = d_range
     with KERNEL_LOCK:
-        nb.finish_colour(rows(vals), rows(depth), lo, scale, gamma, d0, d1 - d0, lut,
+        table = brightness_table(vals.dtype, lo, scale, gamma)
+        nb.finish_colour(rows(vals), rows(depth), lo, scale, gamma, d0, d1 - d0, lut, table,
                          rows(bright), rows(rgb, 2))
     return bright, rgb
+
+
+def _finish_peak(vals: np.ndarray, idx: np.ndarray, lo: float, scale: float, gamma: float,
+                 z_step: float, d_range: tuple, lut: np.ndarray) -> tuple:
+    """(depth_um, brightness, rgb) of "peak" from the maximum and its slice, in one pass."""
+    depth = np.empty(vals.shape, np.float32)
+    bright = np.empty(vals.shape, np.float32)
+    rgb = np.empty(vals.shape + (3,), np.float32)
+    d0, d1 = d_range
+    n = max(1, int(idx.max()) + 1) if idx.size else 1  # the slices that hold a maximum
+    slice_row, slice_depth = np.empty(n, np.int64), np.empty(n, np.float32)
+    with KERNEL_LOCK:
+        nb.slice_rows(z_step, d0, d1 - d0, lut.shape[0], slice_row, slice_depth)
+        table = brightness_table(vals.dtype, lo, scale, gamma)
+        nb.finish_peak_colour(rows(vals), rows(idx), lo, scale, gamma, slice_row, slice_depth,
+                              lut, table, rows(depth), rows(bright), rows(rgb, 2))
+    return depth, bright, rgb
+
+
+def brightness_table(dtype: np.dtype, lo: float, scale: float, gamma: float) -> np.ndarray:
+    """The brightness of every 8/16-bit value (one power per value, not per pixel), else empty."""
+    table = np.empty(0, np.float32)
+    if np.dtype(dtype) in (np.dtype(np.uint8), np.dtype(np.uint16)):
+        table = np.empty(np.iinfo(dtype).max + 1, np.float32)
+        nb.brightness_table(lo, scale, gamma, table)
+    return table
 
 
 def _index_depth(vals: np.ndarray, idx: np.ndarray, lo: float, z_step: float) -> np.ndarray:
@@ -162,12 +189,6 @@ def _index_depth(vals: np.ndarray, idx: np.ndarray, lo: float, z_step: float) ->
 def _saturated(vals: np.ndarray, hi: float) -> float:
     """Fraction of pixels whose maximum exceeds *hi* (NaN never does)."""
     return float(np.count_nonzero(vals > hi)) / max(1, vals.size)
-
-
-def _coded_peak(v: Any, lo: float, z_step: float, progress: Progress) -> tuple:
-    """(maximum, index, depth_um) of the "peak" method."""
-    vals, idx = fold_peak(v, progress)
-    return vals, idx, _index_depth(vals, idx, lo, z_step)
 
 
 def _start_weighted(shape: tuple, kdtype: np.dtype) -> tuple:
@@ -251,10 +272,13 @@ def _recolour(result: DepthCodedProjection, cmap: Any, depth_range: Any, clim: A
     lo, hi = result.clim if clim is None else check_interval(clim, name="clim", allow_none=False)
     gamma = result.gamma if gamma is None else check_number(gamma, name="gamma", low=0.0,
                                                             low_open=True)
-    depth = result.depth_um
-    if result.method == "peak" and lo != result.clim[0]:  # the lower limit decides who has a depth
-        depth = _index_depth(result.peak, result.index, lo, result.z_step)
-    brightness, rgb = _finish_colour(result.peak, depth, lo, 1.0 / (hi - lo), gamma, d_range, lut)
+    scale = 1.0 / (hi - lo)
+    if result.method == "peak":  # the lower limit decides which pixels have a depth
+        depth, brightness, rgb = _finish_peak(result.peak, result.index, lo, scale, gamma,
+                                              result.z_step, d_range, lut)
+    else:
+        depth = result.depth_um
+        brightness, rgb = _finish_colour(result.peak, depth, lo, scale, gamma, d_range, lut)
     return replace(result, rgb=rgb, depth_um=depth, brightness=brightness, depth_range=d_range,
                    lut=lut, clim=(lo, hi), gamma=gamma,
                    saturated_fraction=_saturated(result.peak, hi))
@@ -396,9 +420,10 @@ def depth_coded_projection(
         colours = depth_colours(n, z_step=z_step, cmap=lut, depth_range=d_range)
         vals, idx, depth, brightness, rgb = _coded_tinted(v, lo, scale, gamma, z_step, colours,
                                                           progress)
+    elif method == "peak":
+        vals, idx = fold_peak(v, progress)
+        depth, brightness, rgb = _finish_peak(vals, idx, lo, scale, gamma, z_step, d_range, lut)
     else:
-        if method == "peak":
-            vals, idx, depth = _coded_peak(v, lo, z_step, progress)
         brightness, rgb = _finish_colour(vals, depth, lo, scale, gamma, d_range, lut)
     return DepthCodedProjection(
         rgb=rgb, depth_um=depth, brightness=brightness, depth_range=d_range, lut=lut,

@@ -145,7 +145,8 @@ def _key_pixels(lut: np.ndarray, d_range: tuple, n_colours: int, levels: np.ndar
     bright = np.empty(depth.shape, np.float32)
     rgb = np.empty(depth.shape + (3,), np.float32)
     with KERNEL_LOCK:  # signal given as a fraction of the display range: lo 0, scale 1
-        nb.finish_colour(vals, depth, 0.0, 1.0, gamma, d0, d1 - d0, lut, bright, rgb)
+        nb.finish_colour(vals, depth, 0.0, 1.0, gamma, d0, d1 - d0, lut, np.empty(0, np.float32),
+                         bright, rgb)
     return np.rint(rgb * 255.0).astype(np.uint8)
 
 
