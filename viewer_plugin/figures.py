@@ -573,7 +573,7 @@ def colour_bar_image(legend: Any, *, width_px: int = 260, height_px: int = 54,
     fig.patch.set_alpha(0.0)
     canvas = FigureCanvasAgg(fig)
     if parts.two_dimensional:  # room for the signal ticks at the left, depth ticks below
-        left, bottom = 52 / width_px, 34 / height_px
+        left, bottom = 52 / width_px, 40 / height_px
         ax = fig.add_axes((left, bottom, 1 - left - 8 / width_px, 1 - bottom - 6 / height_px))
     else:
         ax = fig.add_axes((0.05, 0.62, 0.9, 0.33))
