@@ -16,6 +16,7 @@ import numpy as np
 from ..._shared.progress import Progress
 from ..._shared.validation import check_choice, check_interval, check_number, fail
 from . import _compiled as nb
+from . import _finish as fin
 from ._common import KERNEL_LOCK, depth_view, initial_values, resolve_depth_range, rows
 from .colour import DEFAULT_CMAP, depth_colours, resolve_lut
 from .limits import resolve_clim, weight_levels
@@ -147,7 +148,7 @@ def _finish_colour(vals: np.ndarray, depth: np.ndarray, lo: float, scale: float,
     d0, d1 = d_range
     with KERNEL_LOCK:
         table = brightness_table(vals.dtype, lo, scale, gamma)
-        nb.finish_colour(rows(vals), rows(depth), lo, scale, gamma, d0, d1 - d0, lut, table,
+        fin.finish_colour(rows(vals), rows(depth), lo, scale, gamma, d0, d1 - d0, lut, table,
                          rows(bright), rows(rgb, 2))
     return bright, rgb
 
@@ -162,9 +163,9 @@ def _finish_peak(vals: np.ndarray, idx: np.ndarray, lo: float, scale: float, gam
     n = max(1, int(idx.max()) + 1) if idx.size else 1  # the slices that hold a maximum
     slice_row, slice_depth = np.empty(n, np.int64), np.empty(n, np.float32)
     with KERNEL_LOCK:
-        nb.slice_rows(z_step, d0, d1 - d0, lut.shape[0], slice_row, slice_depth)
+        fin.slice_rows(z_step, d0, d1 - d0, lut.shape[0], slice_row, slice_depth)
         table = brightness_table(vals.dtype, lo, scale, gamma)
-        nb.finish_peak_colour(rows(vals), rows(idx), lo, scale, gamma, slice_row, slice_depth,
+        fin.finish_peak_colour(rows(vals), rows(idx), lo, scale, gamma, slice_row, slice_depth,
                               lut, table, rows(depth), rows(bright), rows(rgb, 2))
     return depth, bright, rgb
 
@@ -174,7 +175,7 @@ def brightness_table(dtype: np.dtype, lo: float, scale: float, gamma: float) -> 
     table = np.empty(0, np.float32)
     if np.dtype(dtype) in (np.dtype(np.uint8), np.dtype(np.uint16)):
         table = np.empty(np.iinfo(dtype).max + 1, np.float32)
-        nb.brightness_table(lo, scale, gamma, table)
+        fin.brightness_table(lo, scale, gamma, table)
     return table
 
 
@@ -182,7 +183,7 @@ def _index_depth(vals: np.ndarray, idx: np.ndarray, lo: float, z_step: float) ->
     """Depth in µm of each maximum above *lo* (NaN elsewhere), float32."""
     depth = np.empty(vals.shape, np.float32)
     with KERNEL_LOCK:
-        nb.finish_depth_index(rows(vals), rows(idx), lo, z_step, rows(depth))
+        fin.finish_depth_index(rows(vals), rows(idx), lo, z_step, rows(depth))
     return depth
 
 
@@ -214,7 +215,7 @@ def _coded_weighted(v: Any, floor: float, w_scale: float, z_step: float,
     vals, sum_w, sum_wz = reduce_depth(v, fold, progress)
     depth = np.empty(vals.shape, np.float32)
     with KERNEL_LOCK:
-        nb.finish_depth_sums(rows(sum_w), rows(sum_wz), z_step, rows(depth))
+        fin.finish_depth_sums(rows(sum_w), rows(sum_wz), z_step, rows(depth))
     return vals, None, depth
 
 
@@ -250,9 +251,9 @@ def _coded_tinted(v: Any, lo: float, scale: float, gamma: float, z_step: float,
     depth = _index_depth(vals, idx, lo, z_step)
     bright = np.empty(vals.shape, np.float32)
     with KERNEL_LOCK:
-        nb.finish_brightness(rows(vals), lo, scale, gamma, rows(bright))
+        fin.finish_brightness(rows(vals), lo, scale, gamma, rows(bright))
         for lead in np.ndindex(*vals.shape[:-2]):
-            nb.finish_tint(vals[lead], lo, scale, gamma, tint[lead])
+            fin.finish_tint(vals[lead], lo, scale, gamma, tint[lead])
     return vals, idx, depth, bright, np.moveaxis(tint, -3, -1)
 
 

@@ -17,7 +17,7 @@ from typing import Any, Optional
 import numpy as np
 
 from ..._shared.validation import check_choice, check_int, check_interval, fail
-from . import _compiled as nb
+from . import _finish as fin
 from ._common import KERNEL_LOCK
 from .colour import DEFAULT_CMAP, lut_index, resolve_lut
 
@@ -145,7 +145,7 @@ def _key_pixels(lut: np.ndarray, d_range: tuple, n_colours: int, levels: np.ndar
     bright = np.empty(depth.shape, np.float32)
     rgb = np.empty(depth.shape + (3,), np.float32)
     with KERNEL_LOCK:  # signal given as a fraction of the display range: lo 0, scale 1
-        nb.finish_colour(vals, depth, 0.0, 1.0, gamma, d0, d1 - d0, lut, np.empty(0, np.float32),
+        fin.finish_colour(vals, depth, 0.0, 1.0, gamma, d0, d1 - d0, lut, np.empty(0, np.float32),
                          bright, rgb)
     return np.rint(rgb * 255.0).astype(np.uint8)
 
