@@ -16,6 +16,7 @@ Run on demand::
 
 from __future__ import annotations
 
+import dataclasses
 import os
 
 os.environ.setdefault("OMP_WAIT_POLICY", "PASSIVE")  # as bench_projections: no spinning workers
@@ -42,10 +43,19 @@ CHANGES = {
 
 
 def cases(stack: np.ndarray) -> dict[str, Callable[[], object]]:
-    """The timed recolours, of a "peak" and a "weighted" result of *stack*."""
+    """The timed recolours, of a "peak" and a "weighted" result of *stack*.
+
+    Most background pixels of this stack have no weighted depth (nothing above the background
+    floor), and those are the cheapest to paint; "weighted, dense" gives every pixel a depth
+    (uniform over the stack), the most work a weighted recolour can have.
+    """
     out: dict[str, Callable[[], object]] = {}
-    for method in P.RECOLOURABLE:
-        result = P.depth_coded_projection(stack, method=method, clim=CLIM)
+    results = {method: P.depth_coded_projection(stack, method=method, clim=CLIM)
+               for method in P.RECOLOURABLE}
+    deepest = (stack.shape[0] - 1) * results["weighted"].z_step
+    every = np.random.default_rng(1).uniform(0.0, deepest, stack.shape[1:]).astype(np.float32)
+    results["weighted, dense"] = dataclasses.replace(results["weighted"], depth_um=every)
+    for method, result in results.items():
         for name, change in CHANGES.items():
             out[f"recolour[{method}, {name}]"] = (lambda r=result, c=change: r.recolour(**c))
     return out

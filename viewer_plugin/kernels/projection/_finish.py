@@ -33,20 +33,27 @@ __all__ = [
 
 @njit(inline="always")
 def _brightness_of(x, lo, scale, gamma):
-    """``clip((x - lo) * scale, 0, 1) ** gamma`` in float64; NaN gives 0."""
+    """``clip((x - lo) * scale, 0, 1) ** gamma`` in float64; NaN gives 0.
+
+    0 and 1 are returned without the power (0 ** g = 0 and 1 ** g = 1 exactly
+    for g > 0, C99 pow): values outside the display range cost no power.
+    """
     b = (np.float64(x) - lo) * scale
     b = b if b > 0.0 else 0.0
     b = b if b < 1.0 else 1.0
-    return b if gamma == 1.0 else b ** gamma
+    return b if (gamma == 1.0) | (b == 0.0) | (b == 1.0) else b ** gamma
 
 
 @njit(inline="always")
 def _lut_row(depth, d0, span, n):
     """Entry of an *n*-colour table for *depth* (0 for NaN), the rule of matplotlib's
-    ``Colormap.__call__``: ``clip(floor(t * N), 0, N - 1)``, ``t = clip((depth - d0) / span, 0, 1)``."""
+    ``Colormap.__call__``: ``floor(clip(t * N, 0, N - 1))``, ``t = (depth - d0) / span``.
+
+    Clamped in floating point before the conversion: an integer ``min`` would
+    be a branch, mispredicted wherever depths fall outside the range.
+    """
     t = (depth - d0) / span if depth == depth else 0.0
-    t = _min_ordered(_max_ordered(t, 0.0), 1.0)
-    return min(int(t * n), n - 1)
+    return int(_min_ordered(_max_ordered(t * n, 0.0), n - 1.0))
 
 
 @njit(inline="always")
@@ -161,11 +168,15 @@ def _bright_impl(x, lo, scale, gamma, table):
 
 @njit(cache=True, nogil=True)
 def slice_rows(z_step, d0, span, n_colours, rows, depths):
-    """Per slice z: the float32 depth ``z * z_step`` and its colour-table entry (:func:`_lut_row`)."""
+    """Per slice z: the float32 depth ``z * z_step`` and its colour-table entry (:func:`_lut_row`).
+
+    *depths* has one entry more than *rows*: NaN, the depth of a pixel without signal.
+    """
     for z in range(rows.shape[0]):
         d = np.float32(np.float64(z) * z_step)
         depths[z] = d
         rows[z] = _lut_row(np.float64(d), d0, span, n_colours)
+    depths[rows.shape[0]] = np.nan
 
 
 @njit(**_OPTS)
@@ -179,13 +190,16 @@ def finish_peak_colour(vals, idx, lo, scale, gamma, rows, depths, lut, table, de
     two lookups per pixel instead of the arithmetic.
     """
     nr, nc = vals.shape
+    none = np.int64(rows.shape[0])  # the NaN entry of depths
     for r in prange(nr):
         out = rgb[r]
         for c in range(nc):
             x = vals[r, c]
             i = idx[r, c]
-            k = i if i > 0 else 0
-            depth[r, c] = depths[k] if x > lo else np.float32(np.nan)  # False for NaN
+            k = np.int64(i if i > 0 else 0)
+            # k where the maximum exceeds lo (False for NaN), else the NaN entry: arithmetic, no
+            # branch (a branch would be mispredicted where maxima scatter around lo)
+            depth[r, c] = depths[k + (none - k) * np.int64(not x > lo)]
             b = _bright(x, lo, scale, gamma, table)
             bright[r, c] = b
             j = rows[k]

@@ -161,7 +161,7 @@ def _finish_peak(vals: np.ndarray, idx: np.ndarray, lo: float, scale: float, gam
     rgb = np.empty(vals.shape + (3,), np.float32)
     d0, d1 = d_range
     n = max(1, int(idx.max()) + 1) if idx.size else 1  # the slices that hold a maximum
-    slice_row, slice_depth = np.empty(n, np.int64), np.empty(n, np.float32)
+    slice_row, slice_depth = np.empty(n, np.int64), np.empty(n + 1, np.float32)
     with KERNEL_LOCK:
         fin.slice_rows(z_step, d0, d1 - d0, lut.shape[0], slice_row, slice_depth)
         table = brightness_table(vals.dtype, lo, scale, gamma)
