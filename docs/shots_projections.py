@@ -2,11 +2,11 @@
 
     xvfb-run -a python docs/shots_projections.py
 
-Writes docs/images/projection_depth_colour.png (the depth colour widget and its RGB result),
-projection_peak_depth.png (maximum and depth map in µm with napari's colour bar),
-projection_occlusion.png (depth-coloured occlusion top view, the two side views below it) and
-projection_figure.png (the figure "Export figure…" saves for a paper). Open them and look at
-them before committing.
+Writes docs/images/projection_depth_colour.png (the depth colour widget, its 2-D key and its
+RGB result), projection_peak_depth.png (maximum and depth map in µm with napari's colour bar),
+projection_occlusion.png (occlusion top view coloured by depth with the default map, the two
+side views below it) and projection_figure.png (the figure "Export figure…" saves for a paper).
+Open them and look at them before committing.
 """
 
 from __future__ import annotations
@@ -43,8 +43,7 @@ def main() -> int:
     from qtpy.QtWidgets import QApplication
 
     from viewer_plugin import demo
-    from viewer_plugin.figures import export_depth_figure
-    from viewer_plugin.kernels.projection import warm_up
+    from viewer_plugin.kernels.projection import DEFAULT_CMAP, warm_up
     from viewer_plugin.samples import demo_layer
     from viewer_plugin.widgets.projection import (
         DepthColourWidget,
@@ -76,13 +75,14 @@ def main() -> int:
     peak.hide_background.value = True
     dock(viewer, peak, "Peak depth map")
     wait(app, peak.compute(start_thread=False), peak)
-    only_visible(viewer, f"{name} depth of max (\u00b5m)")
+    only_visible(viewer, f"{name} peak depth (\u00b5m)")
+    viewer.reset_view()
     settle(app)
     viewer.screenshot(str(IMAGES / "projection_peak_depth.png"), canvas_only=False)
 
     occlusion = OcclusionWidget(viewer)
     occlusion.side_views.value = True
-    occlusion.colour.value = "viridis"  # each slice emits its depth's colour, side views too
+    occlusion.colour.value = DEFAULT_CMAP  # each slice emits its depth's colour, side views too
     dock(viewer, occlusion, "Occlusion projection")
     wait(app, occlusion.compute(start_thread=False), occlusion)
     only_visible(viewer, f"{name} occlusion (top)", f"{name} occlusion side (along y)",
@@ -90,17 +90,14 @@ def main() -> int:
     viewer.reset_view()
     settle(app)
     viewer.screenshot(str(IMAGES / "projection_occlusion.png"), canvas_only=False)
-    viewer.close()
 
     # the figure "Export figure..." saves, from the same result and parameters
     with tempfile.TemporaryDirectory() as tmp:
-        info = colour.result_info
-        files = export_depth_figure(colour.result, Path(tmp) / "figure.png",
-                                    pixel_size_um=tuple(info["voxel_size_um"][1:]),
-                                    title="Fibre slab (synthetic demo), depth colour-coded",
-                                    source_name=info["source_layer"], parameters=info)
+        files = colour.export_figure(Path(tmp) / "figure.png",
+                                     title="Fibre slab (synthetic demo), depth colour-coded")
         shutil.copyfile(files.figure, IMAGES / "projection_figure.png")
         print(files.methods_text)
+    viewer.close()
     return 0
 
 

@@ -62,12 +62,15 @@ def test_colour_bar_ticks_are_depths_in_um():
     assert labels == ["0", "10", "20", "30", "40", "50"]
     np.testing.assert_allclose(cax.get_yticks(), [0, 10, 20, 30, 40, 50])  # tick at its own depth
     assert cax.get_ylim() == pytest.approx((55.0, 0.0))  # depth grows downward
-    # the bar's colours: shallow end = viridis(0), deep end = viridis(1) (matplotlib reference)
+    # the key's colours at full brightness (its last column): shallow end = viridis(0), deep
+    # end = viridis(1) (matplotlib reference); its first column is zero brightness: black
     from matplotlib import colormaps
 
     bar = cax.get_images()[0].get_array()
-    np.testing.assert_allclose(bar[0, 0], colormaps["viridis"](0.5 / 256)[:3], atol=1 / 255)
-    np.testing.assert_allclose(bar[-1, 0], colormaps["viridis"](255.5 / 256)[:3], atol=1 / 255)
+    np.testing.assert_allclose(bar[0, -1], colormaps["viridis"](0.5 / 256)[:3], atol=1 / 255)
+    np.testing.assert_allclose(bar[-1, -1], colormaps["viridis"](255.5 / 256)[:3], atol=1 / 255)
+    assert np.all(bar[:, 0] == 0)
+    assert [t.get_text() for t in cax.get_xticklabels()] == ["0", "500", "1000"]  # signal, clim
 
 
 def test_image_and_scale_bar_in_um():

@@ -3,24 +3,27 @@
 :func:`export_depth_figure` writes, atomically and never over an existing file
 unless asked:
 
-* the figure itself (PNG, TIFF or PDF, chosen by the file extension): the
-  depth-coded image with a scale bar in µm and a colour bar of depth in µm;
+* the figure itself (PNG, TIFF, PDF or SVG, chosen by the file extension): the
+  depth-coded image with a scale bar in µm and its two-dimensional key:
+  depth in µm down, brightness (the signal between the display limits)
+  across, each cell painted as the image paints a voxel at that depth and
+  brightness;
 * ``<figure>.json``: every parameter needed to make the figure again
   (method, colour map, depth range, contrast, gamma, z-step, voxel size,
   source file, stackdepth version, date);
 * ``<figure>.methods.txt``: a methods sentence to adapt for a paper.
 
-:func:`colour_bar_image` draws the same colour bar as a small RGBA array for
-the dock widgets, so the screen and the paper show identical ticks;
+:func:`colour_bar_image` draws the same key as a small RGBA array for the
+dock widgets, so the screen and the paper show identical ticks;
 :func:`draw_scale_bar` and :func:`draw_colour_bar` draw the scale bar and the
-depth colour bar into any matplotlib axes (the movie frames use them too).
+key into any matplotlib axes (the movie frames use them too).
 """
 
 from __future__ import annotations
 
 import datetime as _dt
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Mapping, Sequence
 
@@ -47,14 +50,19 @@ __all__ = [
 #: File extensions accepted for figures and the matplotlib format used for each.
 FIGURE_FORMATS = {".png": "png", ".tif": "tiff", ".tiff": "tiff", ".pdf": "pdf", ".svg": "svg"}
 
+#: Brightness levels across the key of a figure or a dock (depth x brightness).
+KEY_STEPS = 64
+
 #: What each projection method shows, in the words of a methods section.
 METHOD_WORDS = {
     "peak": "each pixel shows the depth of its strongest voxel along the optical axis, "
             "with brightness from that voxel's intensity",
-    "weighted": "each pixel shows the intensity-weighted mean depth of the voxels along the "
-                "optical axis, with brightness from the maximum intensity",
+    "weighted": "each pixel shows the intensity-weighted mean depth of the signal above the "
+                "background level along the optical axis, with brightness from the maximum "
+                "intensity",
     "tinted": "every slice was tinted with the colour of its depth and the tinted slices were "
-              "combined by maximum-intensity projection",
+              "combined by maximum-intensity projection, the display range applied after the "
+              "maximum",
     "occlusion": "the stack was rendered with an emission-absorption model (nearer structures "
                  "partly hide deeper ones); this is a rendering, not a measurement",
     "max": "each pixel shows the maximum intensity along the optical axis",
@@ -66,24 +74,43 @@ CAVEAT = ("Brightness is relative (display contrast), not a calibrated intensity
 
 @dataclass(frozen=True)
 class LegendParts:
-    """The pieces of a depth legend used for drawing.
+    """The pieces of a depth legend (colour bar or 2-D key) used for drawing.
 
     Attributes
     ----------
     image : ndarray, float32, shape (rows, N, 3)
-        The colour table from shallow (column 0) to deep (column N - 1), values in [0, 1].
+        The key from shallow (column 0) to deep (column N - 1), values in
+        [0, 1]; for a 2-D key, row k has brightness ``levels[k]`` (darkest first).
     positions : ndarray of float
         Tick positions as fractions of the table length, 0 = shallow end, 1 = deep end.
     labels : tuple of str
         Tick labels in µm.
     depth_range : tuple of float
         (shallow, deep) depth in µm at the two ends of the table.
+    levels : ndarray of float
+        2-D key: the brightness of each row as a fraction of the display
+        range, increasing; empty for a colour bar.
+    level_ticks : ndarray of float
+        2-D key: tick positions across the key, as fractions of the display range.
+    level_labels : tuple of str
+        Their labels (signal in input units, or fractions).
+    level_title : str
+        What the brightness axis shows.
     """
 
     image: np.ndarray
     positions: np.ndarray
     labels: tuple[str, ...]
     depth_range: tuple[float, float]
+    levels: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    level_ticks: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    level_labels: tuple[str, ...] = ()
+    level_title: str = ""
+
+    @property
+    def two_dimensional(self) -> bool:
+        """True for a depth x brightness key."""
+        return self.levels.size > 0
 
 
 @dataclass(frozen=True)
@@ -134,7 +161,11 @@ def legend_parts(legend: Any) -> LegendParts:
         image = np.swapaxes(image, 0, 1)
     return LegendParts(image[..., :3], np.asarray(legend.tick_fractions, dtype=np.float64),
                        tuple(str(t) for t in legend.tick_labels),
-                       (float(legend.depth_range[0]), float(legend.depth_range[1])))
+                       (float(legend.depth_range[0]), float(legend.depth_range[1])),
+                       np.asarray(getattr(legend, "brightness_levels", ()), dtype=np.float64),
+                       np.asarray(getattr(legend, "brightness_tick_fractions", ()), np.float64),
+                       tuple(getattr(legend, "brightness_tick_labels", ())),
+                       str(getattr(legend, "brightness_title", "")))
 
 
 def nice_length(span: float, *, fraction: float = 0.2) -> float:
@@ -205,16 +236,23 @@ def methods_sentence(parameters: Mapping[str, Any], *, legend_range: Sequence[fl
     >>> text.startswith("Depth was colour-coded with stackdepth")
     True
     """
+    from .kernels.projection import CONSTANT_LIGHTNESS, DEFAULT_CMAP
+
     method = str(parameters.get("method", "peak"))
     words = METHOD_WORDS.get(method, f"method '{method}'")
     d_range = parameters.get("depth_range_um") or legend_range
-    cmap = parameters.get("cmap", "viridis")
+    cmap = parameters.get("cmap", DEFAULT_CMAP)
     text = f"Depth was colour-coded with stackdepth {__version__}: {words}"
     if d_range is not None:
         text += f" ({_fmt(float(d_range[0]))}\u2013{_fmt(float(d_range[1]))} \u00b5m, {cmap} colour map)"
     else:
         text += f" ({cmap} colour map)"
     text += "."
+    if cmap in CONSTANT_LIGHTNESS:
+        text += (f" The {cmap} colour map has constant lightness (Kovesi 2015), so colour shows "
+                 "depth and brightness shows signal.")
+    else:
+        text += f" The lightness of the {cmap} colour map varies with depth."
     z_step = parameters.get("z_step_um")
     voxel = parameters.get("voxel_size_um")
     if voxel is not None and len(voxel) == 3:
@@ -237,6 +275,10 @@ def methods_sentence(parameters: Mapping[str, Any], *, legend_range: Sequence[fl
     else:
         text += " Brightness was scaled between the 0.1 and 99.9 percentiles of the intensity"
     text += "." if float(gamma) == 1.0 else f" with gamma {_fmt(float(gamma))}."
+    floor = parameters.get("weight_floor")
+    if method == "weighted" and floor is not None:
+        text += (f" Depths were weighted by the signal above {_fmt(float(floor))} (background "
+                 "level + 3 SD, sigma-clipped), independent of the display range.")
     text += " " + CAVEAT
     return text + "\n"
 
@@ -304,15 +346,27 @@ def nice_label(value: float) -> str:
     return f"{value:g}"
 
 
-def draw_colour_bar(ax: Any, parts: LegendParts, *, vertical: bool, colour: str = "black") -> None:
-    """Draw a depth colour bar with ticks in µm into *ax*.
+def _level_extent(parts: LegendParts) -> tuple[float, float]:
+    """The brightness axis of a 2-D key: cell centres at the levels (fractions of the range)."""
+    if not parts.two_dimensional:
+        return 0.0, 1.0
+    half = 0.5 / max(1, parts.levels.size - 1)
+    return -half, 1.0 + half
 
-    Used by the figures and dock legends here and by the depth key of movies.
+
+def draw_colour_bar(ax: Any, parts: LegendParts, *, vertical: bool, colour: str = "black") -> None:
+    """Draw the key *parts* (a depth colour bar or the 2-D key) into *ax*, ticks in µm.
+
+    Depth grows downward (vertical) or rightward. Used by the figures and dock
+    legends here and by the depth key of movies.
+
+    A 2-D key has brightness across: left to right (vertical key) or bottom to
+    top (horizontal key), darkest first, ticked with the signal values.
 
     Parameters
     ----------
     ax : matplotlib.axes.Axes
-        The (empty) axes of the bar.
+        The (empty) axes of the key.
     parts : LegendParts
         From :func:`legend_parts`.
     vertical : bool
@@ -324,8 +378,8 @@ def draw_colour_bar(ax: Any, parts: LegendParts, *, vertical: bool, colour: str 
     Returns
     -------
     None
-        The axis label reads "Depth (µm)"; set another with ``ax.set_xlabel``
-        (horizontal) or ``ax.set_ylabel`` (vertical).
+        The depth axis reads "Depth (µm)"; set another label with
+        ``ax.set_xlabel`` (horizontal) or ``ax.set_ylabel`` (vertical).
 
     Examples
     --------
@@ -337,22 +391,30 @@ def draw_colour_bar(ax: Any, parts: LegendParts, *, vertical: bool, colour: str 
     ['0', '10', '20', '30']
     """
     d0, d1 = parts.depth_range
+    b0, b1 = _level_extent(parts)
     table = parts.image
     if vertical:
-        ax.imshow(np.swapaxes(table, 0, 1), aspect="auto", extent=(0, 1, d1, d0),
+        ax.imshow(np.swapaxes(table, 0, 1), aspect="auto", extent=(b0, b1, d1, d0),
                   interpolation="nearest")
-        ax.set_xticks([])
         ax.yaxis.tick_right()
         ax.yaxis.set_label_position("right")
         ax.set_yticks(d0 + parts.positions * (d1 - d0), parts.labels)
         ax.set_ylabel("Depth (\u00b5m)", color=colour)
-        ax.tick_params(axis="y", colors=colour, labelsize=8)
+        ax.set_xticks(parts.level_ticks, parts.level_labels)
+        ax.tick_params(axis="both", colors=colour, labelsize=8)
+        if parts.two_dimensional:
+            ax.set_xlabel("Signal", color=colour, fontsize=8)
+            ax.tick_params(axis="x", labelsize=6, labelrotation=90)
     else:
-        ax.imshow(table, aspect="auto", extent=(d0, d1, 0, 1), interpolation="nearest")
-        ax.set_yticks([])
+        ax.imshow(table, aspect="auto", extent=(d0, d1, b0, b1), origin="lower",
+                  interpolation="nearest")
+        ax.set_yticks(parts.level_ticks, parts.level_labels)
         ax.set_xticks(d0 + parts.positions * (d1 - d0), parts.labels)
         ax.set_xlabel("Depth (\u00b5m)", color=colour)
-        ax.tick_params(axis="x", colors=colour, labelsize=8)
+        ax.tick_params(axis="both", colors=colour, labelsize=8)
+        if parts.two_dimensional:
+            ax.set_ylabel("Signal", color=colour, fontsize=8)
+            ax.tick_params(axis="y", labelsize=7)
     for spine in ax.spines.values():
         spine.set_edgecolor(colour)
 
@@ -360,7 +422,7 @@ def draw_colour_bar(ax: Any, parts: LegendParts, *, vertical: bool, colour: str 
 def build_depth_figure(result: Any, *, pixel_size_um: float | Sequence[float],
                        scale_bar_um: float | None = None, title: str | None = None,
                        dpi: int = 300) -> Any:
-    """The figure of a depth-coded projection: image, scale bar and depth colour bar (µm).
+    """The figure of a depth-coded projection: image, scale bar and its key (depth in µm x signal).
 
     Parameters
     ----------
@@ -378,7 +440,8 @@ def build_depth_figure(result: Any, *, pixel_size_um: float | Sequence[float],
     Returns
     -------
     matplotlib.figure.Figure
-        Not attached to pyplot; ``fig.axes[0]`` is the image (in µm), ``fig.axes[1]`` the colour bar.
+        Not attached to pyplot; ``fig.axes[0]`` is the image (in µm), ``fig.axes[1]`` the key
+        (depth down in µm, brightness across, ticked with the signal).
 
     Raises
     ------
@@ -413,17 +476,19 @@ def _build_figure(result: Any, *, pixel_size_um: Any, scale_bar_um: float | None
         scale_bar_um = nice_length(width_um)
     scale_bar_um = check_number(scale_bar_um, name="scale_bar_um", low=0.0, low_open=True,
                                 high=width_um)
-    parts = legend_parts(depth_legend(result))
-    image_w = 5.0
+    parts = legend_parts(depth_legend(result, brightness_steps=KEY_STEPS, orientation="vertical"))
+    image_w, key_w = 5.0, 1.5  # inches: the image, and the key with its labels
     image_h = min(8.0, max(1.5, image_w * height_um / width_um))
-    fig = Figure(figsize=(image_w + 1.3, image_h + (0.5 if title else 0.2)), dpi=dpi)
-    ax = fig.add_axes((0.02, 0.03, image_w / (image_w + 1.3) - 0.02, 0.94 if not title else 0.88))
+    width, height = image_w + key_w, image_h + (0.5 if title else 0.2)
+    fig = Figure(figsize=(width, height), dpi=dpi)
+    ax = fig.add_axes((0.02, 0.03, image_w / width - 0.02, 0.94 if not title else 0.88))
     ax.imshow(rgb, extent=(0, width_um, height_um, 0), interpolation="nearest")
     ax.set_axis_off()
     ax.set_anchor("W")
     draw_scale_bar(ax, width_um, height_um, scale_bar_um)
-    left = image_w / (image_w + 1.3) + 0.03
-    cax = fig.add_axes((left, 0.15, 0.045, 0.7))
+    top = 0.5 if title else 0.2  # inches above the key; below it: the signal ticks and label
+    cax = fig.add_axes((image_w / width + 0.03, 0.75 / height, 0.45 / width,
+                        (height - 0.75 - top) / height))
     draw_colour_bar(cax, parts, vertical=True)
     if title:
         fig.suptitle(title, fontsize=10, y=0.985)
@@ -433,7 +498,7 @@ def _build_figure(result: Any, *, pixel_size_um: Any, scale_bar_um: float | None
 def _sidecar_record(path: Path, params: dict[str, Any], parts: LegendParts, *, source_name: str,
                     pixel: tuple[float, float], scale_bar_um: float, shape: tuple[int, ...],
                     methods: str) -> dict[str, Any]:
-    """The JSON sidecar: parameters, provenance, colour bar ticks and the methods text."""
+    """The JSON sidecar: parameters, provenance, the key's ticks and the methods text."""
     d0, d1 = parts.depth_range
     return {
         "figure": path.name,
@@ -446,6 +511,12 @@ def _sidecar_record(path: Path, params: dict[str, Any], parts: LegendParts, *, s
         "colour_bar": {"unit": "\u00b5m", "depth_range_um": [d0, d1],
                        "tick_labels": list(parts.labels),
                        "tick_depths_um": [d0 + f * (d1 - d0) for f in parts.positions]},
+        "key": {"depth": "down, \u00b5m below the first slice",
+                "brightness": "across, the signal between the display limits (clim_used), "
+                              "darkest at the left; each cell is the colour of its depth times "
+                              "its brightness ** gamma, as in the image",
+                "brightness_levels": int(parts.levels.size),
+                "brightness_tick_labels": list(parts.level_labels)},
         "image_shape": list(shape),
         "methods": methods.strip(),
         "caveat": CAVEAT,
@@ -470,7 +541,8 @@ def export_depth_figure(
     ----------
     result : object
         The result of ``depth_coded_projection`` (``.rgb`` (y, x, 3) in [0, 1],
-        ``.depth_range`` in µm, ``.lut``); the colour bar is ``depth_legend(result)``.
+        ``.depth_range`` in µm, ``.lut``, ``.clim``, ``.gamma``); the key is
+        ``depth_legend(result, brightness_steps=KEY_STEPS)``.
     path : str or Path
         Figure file; ``.png``, ``.tif``/``.tiff`` or ``.pdf``.
     pixel_size_um : float or (float, float)
@@ -531,7 +603,10 @@ def export_depth_figure(
 
 def colour_bar_image(legend: Any, *, width_px: int = 260, height_px: int = 54,
                      dark: bool = True) -> np.ndarray:
-    """Draw a horizontal depth colour bar with tick labels in µm as an RGBA image.
+    """Draw a depth key (colour bar, or depth x brightness) horizontally as an RGBA image.
+
+    Depth runs left to right with ticks in µm; a 2-D key has brightness
+    upward, ticked with the signal values of the display range.
 
     Parameters
     ----------
@@ -559,8 +634,13 @@ def colour_bar_image(legend: Any, *, width_px: int = 260, height_px: int = 54,
     fig = Figure(figsize=(width_px / dpi, height_px / dpi), dpi=dpi)
     fig.patch.set_alpha(0.0)
     canvas = FigureCanvasAgg(fig)
-    ax = fig.add_axes((0.05, 0.62, 0.9, 0.33))
+    if parts.two_dimensional:  # room for the signal ticks at the left, depth ticks below
+        left, bottom = 52 / width_px, 40 / height_px
+        ax = fig.add_axes((left, bottom, 1 - left - 8 / width_px, 1 - bottom - 6 / height_px))
+    else:
+        ax = fig.add_axes((0.05, 0.62, 0.9, 0.33))
     draw_colour_bar(ax, parts, vertical=False, colour="#e0e0e0" if dark else "black")
+    ax.yaxis.label.set_fontsize(8)
     ax.xaxis.label.set_fontsize(8)
     ax.xaxis.labelpad = 1
     canvas.draw()

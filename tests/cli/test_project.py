@@ -44,12 +44,15 @@ def test_peak_writes_rgb_with_pixel_size(stack_file, tmp_path, capsys):
     params = written.metadata["projection"]
     assert params["method"] == "peak" and params["z_step_um"] == pytest.approx(2.0)
     assert params["depth_range_um"] == pytest.approx([0.0, 18.0])  # (10 - 1) slices x 2 um
-    # pixels on the bar of slice 0 and of slice 9 get the two ends of viridis (matplotlib reference)
-    from matplotlib import colormaps
+    # pixels on the bar of slice 0 and of slice 9 get the two ends of the default map, CET-I1
+    # (colorcet's table, Kovesi 2015): cyan and orange
+    import colorcet
 
-    ends = np.rint(colormaps["viridis"]([0.0, 1.0])[:, :3] * 255)
+    assert params["cmap"] == "CET-I1" and params["cmap_kind"] == "constant"
+    ends = np.rint(colorcet.cm["CET_I1"]([0.0, 1.0])[:, :3] * 255)
     shallow, deep = written.data[1, 20].astype(float), written.data[28, 20].astype(float)
     assert np.argmax(shallow) == np.argmax(ends[0]) and np.argmax(deep) == np.argmax(ends[1])
+    assert 0.0 <= params["saturated_fraction"] <= 1.0
 
 
 def test_max_equals_numpy_max(stack_file, tmp_path):
@@ -199,3 +202,18 @@ def test_every_method_writes_its_projection(stack_file, tmp_path, method):
         assert written.axes == "YX" and written.data.dtype == np.float32
     else:
         assert written.axes == "YXS" and written.data.dtype == np.uint8
+
+
+def test_saturation_is_reported_and_recorded(stack_file, tmp_path, capsys):
+    """More than 1 % of pixels above the upper limit: a note, and the fraction in the sidecar
+    (numpy reference: the share of maxima above the limit)."""
+    path, data = stack_file
+    out, fig = tmp_path / "sat.ome.tif", tmp_path / "sat.png"
+    assert main(["project", str(path), "-o", str(out), "--clim", "100", "200",
+                 "--figure", str(fig)]) == 0
+    captured = capsys.readouterr()
+    assert "saturated" in captured.out + captured.err
+    record = json.loads((tmp_path / "sat.png.json").read_text(encoding="utf-8"))
+    expected = float(np.mean(data.max(axis=0) > 200))
+    assert record["parameters"]["saturated_fraction"] == pytest.approx(expected)
+    assert record["key"]["brightness_tick_labels"][0] == "100"

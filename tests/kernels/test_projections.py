@@ -167,19 +167,34 @@ def test_depth_range_clips_colours_and_array_cmap():
 
 
 def test_weighted_depth_against_numpy_formula():
-    stack = random_stack(np.float32, shape=(10, 12, 14), seed=13)
+    """Weights are the signal above the background floor, whatever the display limits.
+
+    The weighted mean depth sum(w z) / sum(w) written in numpy with w = max(I - floor, 0); the
+    floor is background level + 3 SD of the Poisson(100) background (mean 100, SD 10: about 130,
+    Poisson variance = mean, textbook).
+    """
+    rng = np.random.default_rng(13)
+    stack = rng.poisson(100, size=(10, 12, 14)).astype(np.float32)
+    stack[:, 3:9, 2:12] += rng.random((10, 6, 10)).astype(np.float32) * 800
     lo, hi, z_step = 200.0, 900.0, 1.5
-    result = P.depth_coded_projection(stack, z_step=z_step, method="weighted", clim=(lo, hi))
-    u = np.clip((stack.astype(np.float64) - lo) / (hi - lo), 0, 1)
+    result = P.depth_coded_projection(stack, z_step=z_step, method="weighted", clim=(lo, hi),
+                                      cmap="viridis")
+    floor = result.weight_floor
+    assert floor == pytest.approx(130.0, abs=6.0)
+    w = np.maximum(stack.astype(np.float64) - floor, 0)
     z = np.arange(10)[:, None, None]
     with np.errstate(invalid="ignore"):
-        depth = (u * z).sum(0) / u.sum(0) * z_step
+        depth = (w * z).sum(0) / w.sum(0) * z_step
     np.testing.assert_allclose(result.depth_um, depth, rtol=1e-5)
     bright = np.clip((stack.max(0) - lo) / (hi - lo), 0, 1)
     np.testing.assert_allclose(result.brightness, bright, rtol=1e-6, atol=1e-7)
     t = (result.depth_um.astype(np.float64) - 0.0) / (9 * z_step)
-    colours = matplotlib.colormaps["viridis"](t)[..., :3]
-    np.testing.assert_allclose(result.rgb, colours * bright[..., None], rtol=1e-6, atol=1e-7)
+    colours = matplotlib.colormaps["viridis"](np.nan_to_num(t))[..., :3]
+    expected = np.where(np.isnan(t)[..., None], 0, colours * bright[..., None])
+    np.testing.assert_allclose(result.rgb, expected, rtol=1e-6, atol=1e-7)
+    # other display limits change brightness only, never the depth
+    other = P.depth_coded_projection(stack, z_step=z_step, method="weighted", clim=(0.0, 3000.0))
+    np.testing.assert_array_equal(other.depth_um, result.depth_um)
 
 
 def test_weighted_thick_fibre_centre():
@@ -204,16 +219,28 @@ def test_weighted_default_floor_ignores_background():
 
 @pytest.mark.parametrize("gamma", [1.0, 0.6])
 def test_tinted_against_numpy_formula(gamma):
+    """Slices tinted by depth, channel-wise maximum, then the upper limit on the whole pixel.
+
+    Without saturation: max_z colour_z * u_z**gamma (matplotlib colours). With it (this stack
+    has values above hi), u is not clipped before the maximum: the pixel is divided by
+    max(1, u_max)**gamma afterwards, which keeps its hue.
+    """
     stack = random_stack(np.uint16, shape=(8, 9, 10), seed=17)
     lo, hi, z_step = 500.0, 2500.0, 0.4
     result = P.depth_coded_projection(stack, z_step=z_step, method="tinted", clim=(lo, hi),
                                       gamma=gamma, cmap="plasma")
-    u = np.clip((stack - lo) / (hi - lo), 0, 1) ** gamma
+    u = np.maximum((stack - lo) / (hi - lo), 0)
+    per_pixel = 1 / np.maximum(1, u.max(0))
     t = np.arange(8) * z_step / (7 * z_step)
     colours = matplotlib.colormaps["plasma"](t)[:, :3]  # matplotlib documentation
-    expected = np.max(colours[:, None, None, :] * u[..., None], axis=0)
+    expected = np.max(colours[:, None, None, :] * ((u * per_pixel)[..., None]) ** gamma, axis=0)
     np.testing.assert_allclose(result.rgb, expected, rtol=2e-5, atol=2e-6)
     assert np.all(result.rgb <= result.brightness[..., None] + 1e-6)
+    unsaturated = P.depth_coded_projection(stack, z_step=z_step, method="tinted",
+                                           clim=(lo, 3000.0), gamma=gamma, cmap="plasma")
+    u = np.clip((stack - lo) / (3000.0 - lo), 0, 1) ** gamma
+    np.testing.assert_allclose(unsaturated.rgb, np.max(colours[:, None, None, :] * u[..., None], 0),
+                               rtol=2e-5, atol=2e-6)
 
 
 
@@ -242,7 +269,7 @@ def test_tinted_keeps_crossing_fibres():
     stack = np.zeros((10, 9, 9), np.uint16)
     stack[1, 4, :] = 1000
     stack[8, :, 4] = 1000
-    result = P.depth_coded_projection(stack, method="tinted", clim=(0, 1000))
+    result = P.depth_coded_projection(stack, method="tinted", clim=(0, 1000), cmap="viridis")
     lut = matplotlib.colormaps["viridis"]
     np.testing.assert_allclose(result.rgb[4, 4], np.maximum(lut(1 / 9)[:3], lut(8 / 9)[:3]),
                                rtol=1e-6)

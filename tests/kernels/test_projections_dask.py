@@ -78,6 +78,13 @@ def test_peak_and_depth_codes_equal_numpy(chunks, dtype, every_block_a_task):
         exact = method != "weighted"  # weighted sums are regrouped by block
         for name in ("rgb", "depth_um", "brightness"):
             assert_same(getattr(c, name), getattr(d, name), exact)
+        assert_same(c.peak, d.peak)  # what recolour works from, and the saturation it reports
+        if d.index is not None:
+            assert_same(c.index, d.index)
+        assert c.saturated_fraction == d.saturated_fraction and c.weight_floor == d.weight_floor
+        if method != "tinted":
+            again = dict(cmap="viridis", clim=(500.0, 2000.0), gamma=1.3)
+            assert_same(c.recolour(**again).rgb, d.recolour(**again).rgb, exact)
 
 
 @pytest.mark.parametrize("chunks", CHUNKINGS)

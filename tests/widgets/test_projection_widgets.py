@@ -54,7 +54,9 @@ def test_depth_colour_widget_adds_rgb_layer(make_napari_viewer, qtbot):
     assert widget.axis_combo.value == 0          # the axis labelled "z"
     assert widget.z_step.value == pytest.approx(2.0)  # from the layer scale
     assert widget.method.choices[:3] == ("peak", "weighted", "tinted")
-    assert widget.cmap.choices[:5] == ("viridis", "cividis", "plasma", "inferno", "magma")
+    # constant-lightness maps first, the default first of all (jobs/choices.py)
+    assert widget.cmap.choices[:4] == ("CET-I1", "CET-I3", "CET-I2", "viridis")
+    assert widget.cmap.value == "CET-I1" and widget.cmap_hint.value == ""
     _run(qtbot, widget)
     out = viewer.layers["cells depth colour"]
     assert out.rgb
@@ -400,8 +402,9 @@ def test_real_cortex_depth_map(realdata, make_napari_viewer, qtbot):
                                   "cortex_cells_serial_twophoton.ome.tif").data))
 
 
-def test_weighted_with_layer_contrast_warns_in_the_dock(make_napari_viewer):
-    """Weighted depth needs a lower limit above the background (kernel docs): the dock says so."""
+def test_weighted_hint_says_depth_ignores_contrast(make_napari_viewer):
+    """Weighted depths are weighted by the signal above the background (kernel docs), whatever
+    the contrast limits: the dock says so with either contrast, and names the automatic limits."""
     from viewer_plugin.widgets.projection import DepthColourWidget
 
     viewer = make_napari_viewer(show=True)
@@ -410,9 +413,30 @@ def test_weighted_with_layer_contrast_warns_in_the_dock(make_napari_viewer):
     widget.live.value = False
     assert widget.method_hint.value == ""
     widget.method.value = "weighted"
-    assert "background" in widget.method_hint.value
+    assert "background" in widget.method_hint.value and "only the brightness" in widget.method_hint.value
     widget.auto_contrast.value = True
-    assert widget.method_hint.value == "" and "background + 3 SD" in widget.clim_label.value
+    assert "background" in widget.method_hint.value and "background + 3 SD" in widget.clim_label.value
+
+
+def test_lightness_varying_map_and_saturation_are_flagged(make_napari_viewer, qtbot):
+    """A map whose lightness varies is marked; over 1 % saturated pixels gives a warning."""
+    from viewer_plugin.widgets.projection import DepthColourWidget
+
+    viewer = make_napari_viewer(show=True)
+    layer = _add_stack(viewer)
+    widget = DepthColourWidget(viewer)
+    widget.live.value = False
+    widget.cmap.value = "viridis"
+    assert "lightness" in widget.cmap_hint.value
+    widget.cmap.value = "CET-I1"
+    assert widget.cmap_hint.value == ""
+    layer.contrast_limits = (100.0, 200.0)  # the bars (about 505) are far above: saturated
+    _run(qtbot, widget)
+    # numpy reference: the share of pixels whose maximum exceeds the upper limit
+    expected = float(np.mean(layer.data.max(axis=0) > 200.0))
+    assert widget.result.saturated_fraction == pytest.approx(expected)
+    assert expected > 0.01 and "saturated" in widget.saturation.value
+    assert widget.result_info["saturated_fraction"] == pytest.approx(expected)
 
 
 @pytest.mark.parametrize("pixel", [(0.4, 0.5), (2.0, 2.0)])

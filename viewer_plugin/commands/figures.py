@@ -13,7 +13,7 @@ import argparse
 from pathlib import Path
 from typing import Any
 
-from ..jobs.choices import DEFAULT_CMAP, DEPTH_CODED
+from ..jobs.choices import CMAP_HELP, DEPTH_CODED
 from ._common import (
     EXIT_OK,
     EXIT_USAGE,
@@ -42,7 +42,7 @@ def register(sub: Any) -> None:
     parser.add_argument("--method", default="peak", choices=DEPTH_CODED,
                         help="depth-coding method (default peak)")
     parser.add_argument("--cmap", default=None, metavar="NAME",
-                        help=f"colour map of depth (default {DEFAULT_CMAP})")
+                        help=CMAP_HELP)
     parser.add_argument("--depth-range", nargs=2, type=float, metavar=("A", "B"),
                         help="depths in um at the two ends of the colour map (default: the widest "
                              "stack, for every figure)")

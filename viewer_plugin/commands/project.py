@@ -15,7 +15,7 @@ import dataclasses
 from pathlib import Path
 from typing import Any
 
-from ..jobs.choices import DEFAULT_CMAP, DEFAULT_METHOD, DEPTH_CODED, PROJECTION_METHODS, VIEWS
+from ..jobs.choices import CMAP_HELP, DEFAULT_METHOD, DEPTH_CODED, PROJECTION_METHODS, VIEWS
 from ._common import (
     CommandError,
     TerminalProgress,
@@ -42,8 +42,8 @@ def register(sub: Any) -> None:
     parser.add_argument("--method", default=DEFAULT_METHOD, choices=PROJECTION_METHODS,
                         help=f"projection (default: {DEFAULT_METHOD})")
     parser.add_argument("--cmap", default=None, metavar="NAME",
-                        help=f"matplotlib colour map for depth (default {DEFAULT_CMAP}; with "
-                             "occlusion: colour each slice by its depth)")
+                        help=f"{CMAP_HELP}. With occlusion: colour each slice by its depth "
+                             "(default grey)")
     parser.add_argument("--depth-range", nargs=2, type=float, metavar=("D0", "D1"),
                         help="depths in um at the two ends of the colour map (default: whole stack)")
     parser.add_argument("--clim", nargs=2, type=float, metavar=("LO", "HI"),
@@ -57,8 +57,9 @@ def register(sub: Any) -> None:
     parser.add_argument("--z-step", type=float, default=None, metavar="UM",
                         help="slice spacing in um (default: from the file's voxel size)")
     parser.add_argument("--figure", default=None, metavar="FIG",
-                        help="also save a figure (.png/.tif/.pdf) with colour bar and scale bar in "
-                             "um, plus FIG.json (parameters) and FIG.methods.txt")
+                        help="also save a figure (.png/.tif/.pdf) with its key (depth in um x "
+                             "signal) and scale bar in um, plus FIG.json (parameters) and "
+                             "FIG.methods.txt")
     finish_parser(parser, run, channel_help="channel index for files with several channels")
 
 

@@ -12,7 +12,7 @@ from ..kernels.attenuation import CAUTION as ATTENUATION_CAVEAT
 from ..kernels.attenuation import MODELS as ATTENUATION_MODELS
 from ..kernels.bleaching import RESCALE
 from ..kernels.bleaching.text import DEPTH_CAVEAT, TWO_PASS_CAVEAT, VERDICT_WORDS, VERDICTS
-from ..kernels.projection import MAX_SIDE, TURN_AXES, TURN_METHODS, VIEWS
+from ..kernels.projection import DEFAULT_CMAP, MAX_SIDE, TURN_AXES, TURN_METHODS, VIEWS
 from ..kernels.projection import METHODS as DEPTH_CODED
 
 __all__ = [
@@ -20,10 +20,16 @@ __all__ = [
     "ATTENUATION_MODELS",
     "ATTENUATION_MODEL_LABELS",
     "BLEACHING_CAVEAT",
+    "CMAP_HELP",
+    "CMAP_KIND",
+    "CMAP_KINDS",
+    "CMAP_NOTE",
     "COLOUR_MAPS",
+    "CONSTANT_LIGHTNESS_MAPS",
     "DEFAULT_CMAP",
     "DEFAULT_FPS",
     "DEFAULT_FRAMES",
+    "DEPTH_MAP_CMAPS",
     "DEFAULT_MAX_GAIN",
     "DEFAULT_METHOD",
     "DEFAULT_MOVIE_METHOD",
@@ -44,6 +50,7 @@ __all__ = [
     "PROJECTION_METHODS",
     "RESCALE",
     "RESCALE_LABELS",
+    "SATURATION_LIMIT",
     "TOLERANCE_NOTE",
     "TURN_AXES",
     "TURN_LABELS",
@@ -54,7 +61,10 @@ __all__ = [
     "VERDICT_RULE",
     "VERDICT_WORDS",
     "VIEWS",
+    "WEIGHTED_NOTE",
+    "cmap_caution",
     "labelled",
+    "saturation_warning",
 ]
 
 # --- projections -------------------------------------------------------------------------
@@ -74,20 +84,75 @@ METHOD_LABELS = {
     "max": "max: maximum-intensity projection and its depth",
 }
 
-#: Colour maps for depth, as (label, matplotlib name): perceptually uniform and
-#: colour-vision-deficiency friendly maps first, rainbow-like ones last and marked.
-COLOUR_MAPS = (
-    ("viridis", "viridis"),
-    ("cividis (for red\u2013green colour-blindness)", "cividis"),
-    ("plasma", "plasma"),
-    ("inferno", "inferno"),
-    ("magma", "magma"),
-    ("turbo (rainbow-like)", "turbo"),
-    ("gist_rainbow (rainbow-like)", "gist_rainbow"),
-    ("hsv (rainbow-like, cyclic)", "hsv"),
+#: What a colour map of depth does to a depth-coded image, by kind of map (the mark shown
+#: beside its name in the dock).
+CMAP_KINDS = {
+    "constant": "constant lightness",
+    "varies": "mixes depth into brightness",
+    "rainbow": "rainbow-like, mixes depth into brightness",
+}
+#: Colour maps of depth as (name, kind, colours): constant lightness first (Kovesi's
+#: isoluminant maps, the kernels' ``CONSTANT_LIGHTNESS``), then
+#: matplotlib's perceptually uniform maps, then rainbow-like maps.
+_CMAP_TABLE = (
+    ("CET-I1", "constant", "cyan\u2013green\u2013orange"),
+    ("CET-I3", "constant", "cyan\u2013magenta"),
+    ("CET-I2", "constant", "lighter cyan\u2013green\u2013orange"),
+    ("viridis", "varies", ""),
+    ("cividis", "varies", "for red\u2013green colour-blindness"),
+    ("plasma", "varies", ""),
+    ("inferno", "varies", "black at one end"),
+    ("magma", "varies", "black at one end"),
+    ("turbo", "rainbow", ""),
+    ("gist_rainbow", "rainbow", ""),
+    ("hsv", "rainbow", "cyclic"),
 )
-DEFAULT_CMAP = "viridis"
+#: The kind of each offered colour map ("constant", "varies", "rainbow").
+CMAP_KIND = {name: kind for name, kind, _ in _CMAP_TABLE}
+#: Colour maps for depth, as (dock label, name), in the order of the table above.
+COLOUR_MAPS = tuple(
+    (f"{name} ({colours + ', ' if colours else ''}{CMAP_KINDS[kind]})", name)
+    for name, kind, colours in _CMAP_TABLE)
+#: Maps of constant lightness along depth that the docks and the command line offer.
+CONSTANT_LIGHTNESS_MAPS = tuple(name for name, kind, _ in _CMAP_TABLE if kind == "constant")
+CMAP_NOTE = ("Constant-lightness maps (" + ", ".join(CONSTANT_LIGHTNESS_MAPS) + ") leave "
+             "brightness to the signal alone; with a map whose lightness varies, structures at "
+             "the map's light end look brighter than equally bright ones at its dark end.")
+#: --cmap help of the command line.
+CMAP_HELP = (f"colour map of depth (default {DEFAULT_CMAP}). Constant lightness, so brightness "
+             "shows only the signal: " + ", ".join(CONSTANT_LIGHTNESS_MAPS) + ". Lightness "
+             "varies, mixing depth into brightness: "
+             + ", ".join(n for n, k, _ in _CMAP_TABLE if k == "varies") + "; rainbow-like too: "
+             + ", ".join(n for n, k, _ in _CMAP_TABLE if k == "rainbow")
+             + ". Any other matplotlib name is accepted")
+#: Colour maps of a depth map alone (one quantity, e.g. the peak depth layer): there a
+#: perceptually uniform map whose lightness rises with depth is right.
+DEPTH_MAP_CMAPS = tuple(n for n, k, _ in _CMAP_TABLE if k == "varies")
 
+
+def cmap_caution(name: str | None) -> str:
+    """What the user should know about colour map *name* in a depth-coded image ("" if nothing)."""
+    kind = CMAP_KIND.get(name or DEFAULT_CMAP, "varies")
+    if kind == "constant":
+        return ""
+    return (f"{name}: its lightness changes with depth, so brightness no longer shows the signal "
+            f"alone; for figures prefer {DEFAULT_CMAP} (constant lightness)")
+
+
+#: Warning above this fraction of saturated pixels (brighter than the upper display limit).
+SATURATION_LIMIT = 0.01
+
+
+def saturation_warning(fraction: float | None) -> str:
+    """The warning for a result with *fraction* of saturated pixels ("" at or below 1 %)."""
+    if fraction is None or fraction <= SATURATION_LIMIT:
+        return ""
+    return (f"{100 * fraction:.1f} % of pixels are brighter than the upper display limit: their "
+            "brightness is clipped (saturated); raise the upper limit to tell them apart")
+
+
+WEIGHTED_NOTE = ("weighted: depth is the mean depth of the signal above the background level "
+                 "+ 3 SD, estimated from the stack; the contrast limits set only the brightness.")
 PROJECTION_CAVEAT = ("Colour = depth below the first slice; brightness = display contrast, "
                      "relative and not calibrated.")
 OCCLUSION_NOTE = ("A rendering for looking, not for measuring: its brightness is not an "

@@ -27,6 +27,7 @@ class _Plane:
     depth_range: tuple[float, float]
     lut: np.ndarray
     clim: tuple[float, float]
+    gamma: float
 
 
 def figure_plane(projected: Projected, index: Sequence[int] = ()) -> _Plane:
@@ -50,7 +51,8 @@ def figure_plane(projected: Projected, index: Sequence[int] = ()) -> _Plane:
         if not 0 <= k < n:
             fail("figure", f"index {i} from 0 to {n - 1}", k)
     result = projected.result
-    return _Plane(rgb[index], tuple(result.depth_range), result.lut, tuple(result.clim))
+    return _Plane(rgb[index], tuple(result.depth_range), result.lut, tuple(result.clim),
+                  float(result.gamma))
 
 
 def write_figure(projected: Projected, path: str | Path, *, index: Sequence[int] = (),

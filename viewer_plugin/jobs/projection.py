@@ -9,7 +9,7 @@ import numpy as np
 
 from .._shared.progress import Progress, sub_progress
 from .._shared.validation import check_choice
-from .choices import DEFAULT_CMAP, DEPTH_CODED, PROJECTION_METHODS
+from .choices import CMAP_KIND, DEFAULT_CMAP, DEPTH_CODED, PROJECTION_METHODS, saturation_warning
 from .provenance import provenance
 from .stack import (
     Geometry,
@@ -90,7 +90,8 @@ class Projected:
     side_views : tuple of SideView
         Occlusion views along y and x, when asked for.
     notes : tuple of str
-        Warnings the user should see (e.g. a voxel size that looks like a default).
+        Warnings the user should see (e.g. a voxel size that looks like a default, or more
+        than 1 % of saturated pixels).
     """
 
     method: str
@@ -165,13 +166,10 @@ def project_stack(selection: Selection, options: ProjectionOptions, *,
     if method == "max":
         result = kp.peak_projection(data, axis=axis, z_step=z_step, progress=progress)
     elif method in DEPTH_CODED:
-        cmap = options.cmap or DEFAULT_CMAP
-        result = kp.depth_coded_projection(
-            data, z_step=z_step, method=method, cmap=cmap, depth_range=options.depth_range,
-            clim=options.clim, gamma=options.gamma, axis=axis, progress=progress)
-        entries.update({"cmap": cmap, "depth_range_um": [float(v) for v in result.depth_range],
-                        "depth_range_requested_um": options.depth_range, "clim": options.clim,
-                        "clim_used": [float(v) for v in result.clim], "gamma": options.gamma})
+        result, used = _depth_coded(data, axis, z_step, options, progress)
+        entries.update(used)
+        warning = saturation_warning(result.saturated_fraction)
+        notes = notes + ((warning,) if warning else ())
     else:
         result, sides, used = _occlusion(data, axis, z_step, options, stack, progress)
         entries.update(used)
@@ -180,6 +178,25 @@ def project_stack(selection: Selection, options: ProjectionOptions, *,
     geometry = drop_axis(geometry_of(stack), axis)
     return Projected(method, result, geometry, provenance("projection", selection, **entries),
                      sides, notes)
+
+
+def _depth_coded(data: Any, axis: int, z_step: float, options: ProjectionOptions,
+                 progress: Progress) -> tuple[Any, dict[str, Any]]:
+    """The depth-coded projection and what the provenance records of it."""
+    from ..kernels import projection as kp
+
+    cmap = options.cmap or DEFAULT_CMAP
+    result = kp.depth_coded_projection(
+        data, z_step=z_step, method=options.method, cmap=cmap, depth_range=options.depth_range,
+        clim=options.clim, gamma=options.gamma, axis=axis, progress=progress)
+    kind = CMAP_KIND.get(cmap, "other") if isinstance(cmap, str) else "other"
+    used = {"cmap": cmap, "cmap_kind": kind, "depth_range_um": [float(v) for v in result.depth_range],
+            "depth_range_requested_um": options.depth_range, "clim": options.clim,
+            "clim_used": [float(v) for v in result.clim], "gamma": options.gamma,
+            "saturated_fraction": result.saturated_fraction}
+    if result.weight_floor is not None:
+        used["weight_floor"] = result.weight_floor
+    return result, used
 
 
 def _occlusion(data: Any, axis: int, z_step: float, options: ProjectionOptions, stack: Any,
@@ -220,7 +237,8 @@ def _side_views(data: Any, axis: int, z_step: float, density: float, clim: Any, 
     for k, side_axis in enumerate(lateral, start=1):
         step = float(stack.scale[side_axis])
         view = kp.occlusion_projection(data, z_step=step, density=density, clim=clim, view="top",
-                                       axis=side_axis, progress=sub_progress(progress, k, 3))
+                                       axis=side_axis, depth_axis=axis,
+                                       progress=sub_progress(progress, k, 3))
         depth_pos = axis if axis < side_axis else axis - 1
         view = np.moveaxis(np.asarray(view), depth_pos, -2)
         if colours is not None:

@@ -16,7 +16,6 @@ import numpy as np
 from magicgui.widgets import ComboBox, PushButton, SpinBox
 
 from ..jobs.choices import (
-    COLOUR_MAPS,
     DEFAULT_FRAMES,
     MOVIE_NOTE,
     MOVIE_SUFFIXES,
@@ -25,10 +24,7 @@ from ..jobs.choices import (
 )
 from ._dock import StackDock, in_dock_words, layer_data, layer_letters, layer_stack
 
-__all__ = ["DEPTH_MAP_COLOURS", "ProjectionDock"]
-
-#: Colour maps of the depth map and the occlusion colour, from the shared list (no rainbow maps).
-DEPTH_MAP_COLOURS = tuple(name for label, name in COLOUR_MAPS if "rainbow" not in label)
+__all__ = ["ProjectionDock"]
 
 
 class ProjectionDock(StackDock):

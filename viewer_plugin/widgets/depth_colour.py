@@ -10,12 +10,16 @@ import numpy as np
 from magicgui.widgets import CheckBox, ComboBox, FloatSlider, FloatSpinBox, Label, PushButton
 
 from ..jobs.choices import (
+    CMAP_NOTE,
     COLOUR_MAPS,
     DEFAULT_CMAP,
     DEPTH_CODED,
     METHOD_LABELS,
     PROJECTION_CAVEAT,
+    WEIGHTED_NOTE,
+    cmap_caution,
     labelled,
+    saturation_warning,
 )
 from ._dock import in_dock_words, layer_data, layer_stack
 from ._projection_base import ProjectionDock
@@ -43,8 +47,8 @@ class DepthColourWidget(ProjectionDock):
 
     The full result is a new RGB layer ``"<source> depth colour"``; while
     parameters move, a preview on every 4th pixel (or coarser for big stacks)
-    is shown as ``"<source> depth colour (preview)"``. The colour bar in µm is
-    drawn in the dock; "Export figure…" saves a figure for a paper.
+    is shown as ``"<source> depth colour (preview)"``. The key (depth in µm x
+    brightness) is drawn in the dock; "Export figure…" saves a figure for a paper.
     """
 
     title = "Depth colour projection"
@@ -68,8 +72,8 @@ class DepthColourWidget(ProjectionDock):
         self.method = ComboBox(label="Method", choices=labelled(METHOD_LABELS, DEPTH_CODED),
                                value="peak")
         self.cmap = ComboBox(label="Colour map", choices=list(COLOUR_MAPS), value=DEFAULT_CMAP,
-                             tooltip="The first five are perceptually uniform and readable with "
-                                     "colour-vision deficiency; rainbow-like maps distort depth")
+                             tooltip=CMAP_NOTE)
+        self.cmap_hint = Label(value="")
         self.whole_depth = CheckBox(text="Whole stack depth", value=True)
         self.depth_from = FloatSpinBox(label="Depth from (\u00b5m)", value=0.0, min=-1e6, max=1e6,
                                        step=1.0, enabled=False)
@@ -81,16 +85,20 @@ class DepthColourWidget(ProjectionDock):
         self.method_hint = Label(value="")
         self.gamma = FloatSlider(label="Gamma", value=1.0, min=0.2, max=3.0, step=0.05)
         self.live = CheckBox(text="Live preview (downsampled)", value=True)
-        self.legend = Label(value="")  # shows the colour bar as a pixmap
+        self.legend = Label(value="")  # shows the 2-D key (depth x brightness) as a pixmap
         self.legend_image: np.ndarray | None = None
         self.legend_label = Label(value="")
+        self.saturation = Label(value="")
+        self.saturation.native.setStyleSheet("color: #f0a040")  # a warning, when there is one
         self.export_button = PushButton(text="Export figure\u2026", enabled=False)
         self.caveat = Label(value=PROJECTION_CAVEAT)
-        for label in (self.clim_label, self.method_hint, self.caveat):
+        for label in (self.cmap_hint, self.clim_label, self.method_hint, self.legend_label,
+                      self.saturation, self.caveat):
             label.native.setWordWrap(True)
-        self.extend([self.method, self.cmap, self.whole_depth, self.depth_from, self.depth_to,
-                     self.auto_contrast, self.clim_label, self.method_hint, self.gamma, self.live,
-                     self.legend, self.legend_label, self.caveat])
+        self.extend([self.method, self.cmap, self.cmap_hint, self.whole_depth, self.depth_from,
+                     self.depth_to, self.auto_contrast, self.clim_label, self.method_hint,
+                     self.gamma, self.live, self.legend, self.legend_label, self.saturation,
+                     self.caveat])
         for widget in (self.method, self.cmap, self.depth_from, self.depth_to, self.auto_contrast,
                        self.gamma, self.live):
             widget.changed.connect(self._on_parameter_changed)
@@ -123,10 +131,8 @@ class DepthColourWidget(ProjectionDock):
 
     def _show_clim(self) -> None:
         weighted = self.method.value == "weighted"
-        self.method_hint.value = (
-            "weighted: the lower contrast limit must be at or above the background, or the "
-            "background pulls every depth towards mid-stack; automatic contrast does this "
-            "(background + 3 SD)" if weighted and not self.auto_contrast.value else "")
+        self.method_hint.value = WEIGHTED_NOTE if weighted else ""
+        self.cmap_hint.value = cmap_caution(self.cmap.value)
         layer = self.layer
         if layer is None or self.auto_contrast.value:
             low = "background + 3 SD" if weighted else "0.1 percentile"
@@ -162,18 +168,21 @@ class DepthColourWidget(ProjectionDock):
         self.status.value = f"Added '{self.result_layer.name}' (depth {d0:g}\u2013{d1:g} \u00b5m)"
 
     def _draw_legend(self, result: Any) -> None:
+        """The 2-D key of *result* (as the exported figure draws it) and its saturation warning."""
         from qtpy.QtGui import QImage, QPixmap
 
-        from ..figures import colour_bar_image
+        from ..figures import KEY_STEPS, colour_bar_image
         from ..kernels import depth_legend
 
-        image = np.ascontiguousarray(colour_bar_image(depth_legend(result), width_px=300,
-                                                      height_px=60))
+        key = depth_legend(result, brightness_steps=KEY_STEPS)
+        image = np.ascontiguousarray(colour_bar_image(key, width_px=300, height_px=110))
         self.legend_image = image
         height, width = image.shape[:2]
         qimage = QImage(image.data, width, height, 4 * width, QImage.Format.Format_RGBA8888)
         self.legend.native.setPixmap(QPixmap.fromImage(qimage.copy()))
-        self.legend_label.value = "Depth colour bar (\u00b5m below the first slice)"
+        self.legend_label.value = ("Key: colour = depth (\u00b5m below the first slice), "
+                                   "brightness = signal between the contrast limits")
+        self.saturation.value = saturation_warning(getattr(result, "saturated_fraction", None))
 
     # ----------------------------------------------------------- preview
     def _on_parameter_changed(self, *_: Any) -> None:
@@ -286,7 +295,7 @@ class DepthColourWidget(ProjectionDock):
 
     def export_figure(self, path: str | Path, *, overwrite: bool = False, title: str | None = None,
                       background: bool = False) -> Any:
-        """Save the last full result as a figure with colour bar, scale bar and sidecars.
+        """Save the last full result as a figure with its key, scale bar and sidecars.
 
         Returns the written files, or None after an error (shown as a
         notification). With *background* the figure is drawn and written in a

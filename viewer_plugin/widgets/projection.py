@@ -13,17 +13,17 @@ from typing import Any
 import numpy as np
 from magicgui.widgets import CheckBox, ComboBox, FloatSpinBox, Label
 
-from ..jobs.choices import (
-    DEFAULT_CMAP,
-    OCCLUSION_NOTE,
-)
+from ..jobs.choices import CMAP_KIND, COLOUR_MAPS, DEPTH_MAP_CMAPS, OCCLUSION_NOTE
 from ._dock import in_dock_words, layer_letters
-from ._projection_base import DEPTH_MAP_COLOURS, ProjectionDock
+from ._projection_base import ProjectionDock
 from .depth_colour import DepthColourWidget
 
 __all__ = ["DepthColourWidget", "OcclusionWidget", "PeakDepthWidget", "ProjectionDock"]
 
-#: Colour maps of the depth map and the occlusion colour, from the shared list (no rainbow maps).
+#: Colours of the occlusion rendering: grey, or depth through a map of the shared list
+#: (constant lightness first, no rainbow-like maps).
+OCCLUSION_COLOURS = [("grey", None)] + [
+    (f"depth ({name})", name) for _, name in COLOUR_MAPS if CMAP_KIND[name] != "rainbow"]
 
 
 class PeakDepthWidget(ProjectionDock):
@@ -39,8 +39,10 @@ class PeakDepthWidget(ProjectionDock):
     movie_method = "peak"
 
     def _add_options(self) -> None:
-        self.depth_cmap = ComboBox(label="Depth map colours", choices=list(DEPTH_MAP_COLOURS),
-                                   value=DEFAULT_CMAP)
+        self.depth_cmap = ComboBox(label="Depth map colours", choices=list(DEPTH_MAP_CMAPS),
+                                   value=DEPTH_MAP_CMAPS[0],
+                                   tooltip="The depth map shows one quantity: a map whose "
+                                           "lightness rises steadily with depth suits it")
         self.hide_background = CheckBox(
             text="Blank depth where peak \u2264 lower contrast limit", value=False,
             tooltip="Pixels whose peak is at or below the layer's lower contrast limit get no "
@@ -106,9 +108,9 @@ class OcclusionWidget(ProjectionDock):
                              value="top")
         self.auto_contrast = CheckBox(text="Automatic contrast (percentiles)", value=False,
                                       tooltip="Otherwise the layer's contrast limits are used")
-        self.colour = ComboBox(label="Colour", choices=[("grey", None)] + [
-            (f"depth ({name})", name) for name in DEPTH_MAP_COLOURS[:5]], value=None,
-            tooltip="Grey, or each slice emits the colour of its depth (top and side views)")
+        self.colour = ComboBox(label="Colour", choices=OCCLUSION_COLOURS, value=None,
+                               tooltip="Grey, or each slice emits the colour of its depth (top "
+                                       "and side views)")
         self.side_views = CheckBox(text="Side views along y and along x", value=False)
         self.note = Label(value=OCCLUSION_NOTE)
         self.extend([self.auto_density, self.density, self.view, self.auto_contrast,

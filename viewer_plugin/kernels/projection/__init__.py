@@ -6,7 +6,8 @@
   and whose brightness tells the intensity (three ways to pick the depth);
 * :func:`occlusion_projection` -- emission-absorption compositing (Max 1995),
   where structures in front partly hide those behind them;
-* :func:`depth_legend` -- the colour bar of a depth-coded image;
+* :func:`depth_legend` -- the key of a depth-coded image (a colour bar of
+  depth, or depth x brightness with ``brightness_steps``);
 * :func:`depth_colours`, :func:`display_limits` -- the per-slice colours and
   default display limits the projections use;
 * :func:`turn_volume`, :func:`turned_view`, :func:`turning_views`,
@@ -37,8 +38,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from .colour import depth_colours
-from .depth_colour import METHODS, DepthCodedProjection, depth_coded_projection
+from .colour import CONSTANT_LIGHTNESS, DEFAULT_CMAP, depth_colours
+from .depth_colour import METHODS, RECOLOURABLE, DepthCodedProjection, depth_coded_projection
 from .legend import DepthLegend, depth_legend
 from .limits import CLIM_PERCENTILES, display_limits
 from .occlusion import DEFAULT_OPTICAL_DEPTH, VIEWS, default_density, occlusion_projection
@@ -58,11 +59,14 @@ from .turn import (
 
 __all__ = [
     "CLIM_PERCENTILES",
+    "CONSTANT_LIGHTNESS",
+    "DEFAULT_CMAP",
     "DEFAULT_OPTICAL_DEPTH",
     "MAX_SIDE",
     "METHODS",
     "TURN_AXES",
     "TURN_METHODS",
+    "RECOLOURABLE",
     "VIEWS",
     "DepthCodedProjection",
     "DepthLegend",
@@ -109,6 +113,7 @@ def warm_up() -> None:
     --------
     >>> warm_up()
     """
+    depth_legend((0.0, 1.0), brightness_steps=2)  # the 2-D key's colouring step
     for dtype in (np.uint16, np.uint8, np.float32):  # the commonest microscopy dtype first
         tiny = np.zeros((3, 4, 8), dtype)
         tiny[1, 1, 1] = 1

@@ -13,11 +13,15 @@ Conventions shared by all kernels
 * ``block`` is C-contiguous and of dtype uint8, uint16, float32 or float64
   (the driver converts anything else chunk by chunk).
 * ``z0`` is the global index of ``block[0]`` (the chunk's offset).
-* Normalised intensity ``u = clip((x - lo) * scale, 0, 1)``; NaN gives 0.
+* Signal above the lower limit ``u = max((x - lo) * scale, 0)`` (not clipped at
+  the upper limit: see :func:`_above`); NaN gives 0. The upper display limit
+  is applied after the fold (:mod:`._finish`).
 * Rows are processed in parallel (``prange``); the inner loop runs over the
   contiguous last axis and is written without branches so LLVM vectorises it.
 
-Nothing here validates input: the public functions in the projection modules do.
+The *aggregate* steps (depth, brightness and colour from the final state) are
+in :mod:`._finish`. Nothing here validates input: the public functions in the
+projection modules do.
 """
 
 from __future__ import annotations
@@ -36,10 +40,6 @@ __all__ = [
     "peak_merge",
     "occlusion_update",
     "occlusion_rgb_update",
-    "finish_depth_index",
-    "finish_depth_sums",
-    "finish_brightness",
-    "finish_colour",
 ]
 
 _OPTS = dict(parallel=True, cache=True, nogil=True)
@@ -89,23 +89,32 @@ _max_ordered = _ordered("maxnum")
 _min_ordered = _ordered("minnum")
 
 
-def _unit(x, lo, scale):
-    """Normalised intensity ``clip((x - lo) * scale, 0, 1)`` in float32; NaN -> 0."""
+#: Largest signal above the lower limit the folds carry, in units of the display range
+#: (2**100): keeps infinite or huge float values finite, so sums and ratios stay numbers.
+_HUGE = np.float32(2.0**100)
 
 
-@overload(_unit)
-def _unit_impl(x, lo, scale):
+def _above(x, lo, scale):
+    """Signal above *lo*: ``min(max((x - lo) * scale, 0), 2**100)`` in float32; NaN -> 0.
+
+    Not clipped at 1 (the upper display limit): "weighted" and "tinted" apply
+    the upper limit only after the fold, so that saturation cannot move depths.
+    """
+
+
+@overload(_above)
+def _above_impl(x, lo, scale):
     if isinstance(x, types.Integer):
-        def clamp_int(x, lo, scale):  # no NaN possible: one max and one min
+        def above_int(x, lo, scale):  # no NaN possible: one max and one min
             u = (np.float32(x) - lo) * scale
-            return _min_ordered(_max_ordered(u, np.float32(0.0)), np.float32(1.0))
-        return clamp_int
+            return _min_ordered(_max_ordered(u, np.float32(0.0)), _HUGE)
+        return above_int
 
-    def clamp_float(x, lo, scale):  # NaN compares false and becomes 0
+    def above_float(x, lo, scale):  # NaN compares false and becomes 0
         u = (np.float32(x) - lo) * scale
         u = u if u > np.float32(0.0) else np.float32(0.0)
-        return u if u < np.float32(1.0) else np.float32(1.0)
-    return clamp_float
+        return _min_ordered(u, _HUGE)
+    return above_float
 
 
 def _takes(x, cur, i):
@@ -259,8 +268,10 @@ def peak_merge(vals, idx, later_vals, later_idx, out_vals, out_idx):
 
 @njit(**_OPTS)
 def weighted_update(block, z0, lo, scale, vals, sum_u, sum_uz):
-    """Fold *block* into (max, sum of u, sum of u * z).
+    """Fold *block* into (max, sum of u, sum of u * z), u the signal above *lo* (:func:`_above`).
 
+    *lo* is the background floor (not a display limit) and u is not clipped at
+    the top, so the weighted depth does not depend on the display limits.
     ``vals`` starts at the dtype's minimum for integers and NaN for floats.
     u is float32; groups of up to 16 planes are summed in float32 (exact to
     ~1e-6 relative) and then added to the float64 accumulators. Four planes
@@ -294,10 +305,10 @@ def weighted_update(block, z0, lo, scale, vals, sum_u, sum_uz):
                     x2 = r2[c]
                     x3 = r3[c]
                     v[c] = _top(_top(_top(x0, x1), _top(x2, x3)), v[c])
-                    u0 = _unit(x0, lo32, sc32)
-                    u1 = _unit(x1, lo32, sc32)
-                    u2 = _unit(x2, lo32, sc32)
-                    u3 = _unit(x3, lo32, sc32)
+                    u0 = _above(x0, lo32, sc32)
+                    u1 = _above(x1, lo32, sc32)
+                    u2 = _above(x2, lo32, sc32)
+                    u3 = _above(x3, lo32, sc32)
                     s4 = (u0 + u1) + (u2 + u3)
                     gu[c] += s4
                     guz[c] += zf * s4 + (u1 + two * u2 + three * u3)
@@ -308,7 +319,7 @@ def weighted_update(block, z0, lo, scale, vals, sum_u, sum_uz):
                 for c in range(nc):
                     x = row[c]
                     v[c] = _top(x, v[c])
-                    u = _unit(x, lo32, sc32)
+                    u = _above(x, lo32, sc32)
                     gu[c] += u
                     guz[c] += u * zf
                 z += 1
@@ -322,6 +333,9 @@ def weighted_update(block, z0, lo, scale, vals, sum_u, sum_uz):
 def tinted_update(block, z0, lo, scale, colours, vals, idx, tint):
     """Fold *block* into (max, argmax, channel-wise max of colour * u).
 
+    u is the signal above *lo* (:func:`_above`), not clipped at the upper
+    display limit: :func:`finish_tint` applies that limit to the whole pixel
+    after the fold, so a saturated object keeps the colour of its centre.
     ``colours[z]`` is the (already gamma-adjusted, non-negative) colour of
     global slice z; ``tint`` is planar, shape (3, rows, cols), float32,
     starting at 0. ``idx`` is int16 or int32 as in :func:`peak_update`.
@@ -356,10 +370,10 @@ def tinted_update(block, z0, lo, scale, colours, vals, idx, tint):
                     xd = rd[c]
                     v[c], ix[c] = _max_first4((xa, xb, xc, xd), v[c], ix[c], z4)
                     # u is never NaN, so the ordered max is exact
-                    ua = _unit(xa, lo32, sc32)
-                    ub = _unit(xb, lo32, sc32)
-                    uc = _unit(xc, lo32, sc32)
-                    ud = _unit(xd, lo32, sc32)
+                    ua = _above(xa, lo32, sc32)
+                    ub = _above(xb, lo32, sc32)
+                    uc = _above(xc, lo32, sc32)
+                    ud = _above(xd, lo32, sc32)
                     t0[c] = _tint(t0[c], a0, ua, b0, ub, c0, uc, d0, ud)
                     t1[c] = _tint(t1[c], a1, ua, b1, ub, c1, uc, d1, ud)
                     t2[c] = _tint(t2[c], a2, ua, b2, ub, c2, uc, d2, ud)
@@ -378,7 +392,7 @@ def tinted_update(block, z0, lo, scale, colours, vals, idx, tint):
                 for c in range(nc):
                     x = row[c]
                     v[c], ix[c] = _max_first(x, v[c], ix[c], za)
-                    u = _unit(x, lo32, sc32)
+                    u = _above(x, lo32, sc32)
                     t0[c] = _max_ordered(t0[c], a0 * u)
                     t1[c] = _max_ordered(t1[c], a1 * u)
                     t2[c] = _max_ordered(t2[c], a2 * u)
@@ -654,87 +668,3 @@ def occlusion_rgb_update(block, z0, lo, scale, kappa, thin, reverse, colours, co
                     k2[c] += t32 * e3[2, c]
                     tr[c] = t - t * np.float64(a4[c])
             k += step
-
-
-# --- aggregate: from the final state to depth, brightness and colour -----------
-
-@njit(inline="always")
-def _brightness_of(x, lo, scale, gamma):
-    """``clip((x - lo) * scale, 0, 1) ** gamma`` in float64; NaN gives 0."""
-    b = (np.float64(x) - lo) * scale
-    b = b if b > 0.0 else 0.0
-    b = b if b < 1.0 else 1.0
-    return b if gamma == 1.0 else b ** gamma
-
-
-@njit(inline="always")
-def _paint(depth, bright, d0, span, lut, out):
-    """out[:] = lut[index(depth)] * bright; black where depth is NaN.
-
-    ``index = clip(floor(t * N), 0, N - 1)`` with ``t = (depth - d0) / span``
-    clipped to [0, 1] -- the rule of matplotlib's ``Colormap.__call__``.
-    """
-    if depth != depth:
-        out[0] = 0.0
-        out[1] = 0.0
-        out[2] = 0.0
-        return
-    n = lut.shape[0]
-    t = (depth - d0) / span
-    t = min(max(t, 0.0), 1.0)
-    j = min(int(t * n), n - 1)
-    out[0] = lut[j, 0] * bright
-    out[1] = lut[j, 1] * bright
-    out[2] = lut[j, 2] * bright
-
-
-@njit(inline="always")
-def _index_depth(x, i, lo, z_step):
-    """Depth in µm of slice *i* when *x* exceeds lo, else NaN (-1 reads as 0)."""
-    if x > lo:  # False for NaN
-        return np.float64(max(np.int64(i), 0)) * z_step
-    return np.nan
-
-
-@njit(**_OPTS)
-def finish_depth_index(vals, idx, lo, z_step, depth):
-    """depth = index * z_step where vals > lo, else NaN; 2-D (rows, cols), float32 out."""
-    nr, nc = vals.shape
-    for r in prange(nr):
-        for c in range(nc):
-            depth[r, c] = _index_depth(vals[r, c], idx[r, c], lo, z_step)
-
-
-@njit(**_OPTS)
-def finish_depth_sums(sum_u, sum_uz, z_step, depth):
-    """depth = sum_uz / sum_u * z_step (NaN where sum_u is 0); 2-D, float32 out."""
-    nr, nc = sum_u.shape
-    for r in prange(nr):
-        for c in range(nc):
-            w = sum_u[r, c]
-            depth[r, c] = sum_uz[r, c] / w * z_step if w > 0.0 else np.nan
-
-
-@njit(**_OPTS)
-def finish_brightness(vals, lo, scale, gamma, bright):
-    """bright = clip((vals - lo) * scale, 0, 1) ** gamma (NaN -> 0); 2-D, float32 out."""
-    nr, nc = vals.shape
-    for r in prange(nr):
-        for c in range(nc):
-            bright[r, c] = _brightness_of(vals[r, c], lo, scale, gamma)
-
-
-@njit(**_OPTS)
-def finish_colour(vals, depth, lo, scale, gamma, d0, span, lut, bright, rgb):
-    """Brightness and ``rgb = lut[index(depth)] * brightness`` (black where depth is NaN).
-
-    2-D ``vals`` and float32 ``depth`` (rows, cols); float32 outputs
-    ``bright`` (rows, cols) and ``rgb`` (rows, cols, 3). The colour is taken
-    from the stored float32 values, so it matches what is returned.
-    """
-    nr, nc = vals.shape
-    for r in prange(nr):
-        for c in range(nc):
-            b = np.float32(_brightness_of(vals[r, c], lo, scale, gamma))
-            bright[r, c] = b
-            _paint(np.float64(depth[r, c]), np.float64(b), d0, span, lut, rgb[r, c])

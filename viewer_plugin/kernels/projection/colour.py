@@ -1,4 +1,12 @@
-"""Colour tables of the depth-coded projections: lookup as matplotlib does, colour per slice."""
+"""Colour tables of the depth-coded projections: lookup as matplotlib does, colour per slice.
+
+The depth-coded images show depth by colour and signal by brightness. A
+colour table whose own lightness changes along depth (viridis: CIELAB L* 15
+to 91) mixes depth into brightness; the default tables therefore keep
+lightness constant along depth: Kovesi's isoluminant maps CET-I1, CET-I3 and
+CET-I2 (CIELAB L* constant to about 1 unit), taken from the ``colorcet``
+package. matplotlib names keep meaning matplotlib's maps.
+"""
 
 from __future__ import annotations
 
@@ -9,30 +17,52 @@ import numpy as np
 from ..._shared.validation import check_int, check_number, fail
 from ._common import resolve_depth_range
 
-__all__ = ["depth_colours", "lut_index", "resolve_lut", "slice_colours"]
+__all__ = ["CONSTANT_LIGHTNESS", "DEFAULT_CMAP", "depth_colours", "lut_index", "resolve_lut",
+           "slice_colours"]
+
+#: Colour tables of constant lightness along depth (P. Kovesi, "Good colour maps: how to
+#: design them", arXiv:1509.03700, 2015; the ``colorcet`` package): CET-I1 cyan-green-orange
+#: (CIELAB L* 70), CET-I3 cyan-magenta (L* 70), CET-I2 the lighter cyan-green-orange (L* 79-80).
+CONSTANT_LIGHTNESS = ("CET-I1", "CET-I3", "CET-I2")
+#: The default colour table of depth: constant lightness, so brightness shows only the signal;
+#: its two ends stay 43.9 CAM02-UCS units apart under simulated deuteranopia.
+DEFAULT_CMAP = "CET-I1"
+
+_NAME_HELP = ("a colour map name (" + ", ".join(CONSTANT_LIGHTNESS)
+              + " or a matplotlib name such as 'viridis') or an (N, 3) array")
+
+
+def _named_table(name: str, arg: str) -> Any:
+    """The Colormap of a constant-lightness name (colorcet) or of a matplotlib name."""
+    if name in CONSTANT_LIGHTNESS:
+        import colorcet
+
+        return colorcet.cm[name.replace("-", "_")]
+    import matplotlib
+
+    try:
+        return matplotlib.colormaps[name]
+    except KeyError:
+        fail(arg, _NAME_HELP, name)
 
 
 def resolve_lut(cmap: Any, *, name: str = "cmap") -> np.ndarray:
-    """An (N, 3) float64 colour table from a matplotlib name, Colormap or array.
+    """An (N, 3) float64 colour table from a name, a matplotlib Colormap or an array.
 
-    A matplotlib colormap gives its own N entries, ``cmap(arange(N))[:, :3]``,
+    Names are those of :data:`CONSTANT_LIGHTNESS` (from ``colorcet``) or
+    matplotlib's. A colormap gives its own N entries, ``cmap(arange(N))[:, :3]``,
     so that :func:`lut_index` reproduces ``cmap(t)`` exactly.
     """
     if isinstance(cmap, str):
-        import matplotlib
-
-        try:
-            cmap = matplotlib.colormaps[cmap]
-        except KeyError:
-            fail(name, "a matplotlib colormap name such as 'viridis' or an (N, 3) array", cmap)
+        cmap = _named_table(cmap, name)
     if hasattr(cmap, "N") and callable(cmap):
-        return np.asarray(cmap(np.arange(int(cmap.N)))[:, :3], dtype=np.float64)
+        return np.ascontiguousarray(cmap(np.arange(int(cmap.N)))[:, :3], dtype=np.float64)
     try:
         table = np.asarray(cmap, dtype=np.float64)
     except (TypeError, ValueError):
-        fail(name, "a matplotlib colormap name or an (N, 3) array", cmap)
+        fail(name, _NAME_HELP, cmap)
     if table.ndim != 2 or table.shape[1] != 3 or table.shape[0] < 1:
-        fail(name, "a matplotlib colormap name or an (N, 3) array", table)
+        fail(name, _NAME_HELP, table)
     if not np.all(np.isfinite(table)) or table.min() < 0 or table.max() > 1:
         fail(name, "colour values in [0, 1]", f"<values from {np.nanmin(table)} to {np.nanmax(table)}>")
     return table.copy()
@@ -58,7 +88,7 @@ def depth_colours(
     n_slices: int,
     *,
     z_step: float = 1.0,
-    cmap: Any = "viridis",
+    cmap: Any = DEFAULT_CMAP,
     depth_range: Optional[tuple[float, float]] = None,
 ) -> np.ndarray:
     """Colour of every slice, as the depth-coded projections use it.
@@ -77,7 +107,7 @@ def depth_colours(
     z_step : float, optional
         Slice spacing in µm (> 0).
     cmap : str, matplotlib Colormap or array of shape (N, 3), optional
-        Colour table (default "viridis").
+        Colour table (default :data:`DEFAULT_CMAP`, constant lightness).
     depth_range : (float, float), optional
         (d0, d1) in µm; default the first to the last slice.
 

@@ -1,20 +1,25 @@
-"""The colour bar ("depth legend") of a depth-coded projection.
+"""The key ("depth legend") of a depth-coded projection.
 
-Widgets and exports draw the same legend from one :class:`DepthLegend`: an
-RGB image of the colour table plus tick positions and labels in µm at "nice"
-1-2-5 steps.
+Widgets and exports draw the same key from one :class:`DepthLegend`: an RGB
+image plus tick positions and labels in µm at "nice" 1-2-5 steps. With
+``brightness_steps`` the key is two-dimensional: depth along one axis,
+brightness (the signal between the display limits) along the other, each
+pixel painted by the projection's own colouring step, so it shows exactly
+what the image shows for a voxel at that depth and brightness.
 """
 
 from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, Optional
 
 import numpy as np
 
 from ..._shared.validation import check_choice, check_int, check_interval, fail
-from .colour import lut_index, resolve_lut
+from . import _finish as fin
+from ._common import KERNEL_LOCK
+from .colour import DEFAULT_CMAP, lut_index, resolve_lut
 
 __all__ = ["DepthLegend", "depth_legend", "nice_ticks", "ORIENTATIONS"]
 
@@ -24,33 +29,48 @@ ORIENTATIONS = ("horizontal", "vertical")
 
 @dataclass(frozen=True, eq=False)
 class DepthLegend:
-    """A colour bar for depth in µm.
+    """The key of a depth-coded image: a colour bar of depth in µm, or a 2-D key.
 
     Attributes
     ----------
-    image : ndarray of uint8, shape (height, n_colours, 3) or (n_colours, height, 3)
-        The colour table drawn as a bar: horizontal bars run from d0 (left)
-        to d1 (right); vertical bars from d0 (top row, the first slice) to
-        d1 (bottom row), like depth in a side view.
+    image : ndarray of uint8, shape (across, n_colours, 3) or (n_colours, across, 3)
+        Horizontal keys run from d0 (left) to d1 (right); vertical keys from
+        d0 (top row, the first slice) to d1 (bottom row), like depth in a
+        side view. *across* is ``height`` rows of the same colours for a
+        colour bar, or one row (column, when vertical) per entry of
+        ``brightness_levels``, darkest first, for a 2-D key.
     depth_range : tuple of float
-        (d0, d1) in µm at the two ends of the bar.
+        (d0, d1) in µm at the two ends of the depth axis.
     tick_depths_um : tuple of float
         Tick values in µm (multiples of a 1, 2 or 5 times a power of ten).
     tick_labels : tuple of str
         The tick values as text, without unit (see ``unit``).
     tick_positions : tuple of float
-        Where each tick falls along the long side of ``image``, in pixels
+        Where each tick falls along the depth axis of ``image``, in pixels
         from its d0 edge (0 = the d0 edge, n_colours = the d1 edge).
     tick_fractions : tuple of float
-        The same positions as fractions of the bar length, in [0, 1].
+        The same positions as fractions of the depth axis, in [0, 1].
     orientation : str
         "horizontal" or "vertical".
     lut : ndarray of float64, shape (N, 3)
-        The colour table the bar was drawn from.
+        The colour table the key was drawn from.
     unit : str
         "µm".
     title : str
         "depth (µm)".
+    brightness_levels : tuple of float
+        2-D key: the signal of each row (column) across the key, as a
+        fraction of the display range ``(I - lo) / (hi - lo)``, from 0 to 1;
+        the pixel is ``colour(depth) * level ** gamma``. Empty for a colour bar.
+    brightness_tick_fractions : tuple of float
+        Ticks across the key, as fractions of the display range.
+    brightness_tick_labels : tuple of str
+        Their labels: signal values in input units when the key was made
+        from a result (its ``clim``), else fractions of the display range.
+    brightness_title : str
+        What the brightness axis shows ("" for a colour bar).
+    gamma : float
+        The brightness exponent the key was painted with.
     """
 
     image: np.ndarray
@@ -63,6 +83,11 @@ class DepthLegend:
     lut: np.ndarray
     unit: str = "µm"
     title: str = "depth (µm)"
+    brightness_levels: tuple[float, ...] = ()
+    brightness_tick_fractions: tuple[float, ...] = ()
+    brightness_tick_labels: tuple[str, ...] = ()
+    brightness_title: str = ""
+    gamma: float = 1.0
 
 
 def nice_ticks(low: float, high: float, *, max_ticks: int = 6) -> tuple[list[float], int]:
@@ -110,6 +135,31 @@ def nice_ticks(low: float, high: float, *, max_ticks: int = 6) -> tuple[list[flo
     return ticks, decimals
 
 
+def _key_pixels(lut: np.ndarray, d_range: tuple, n_colours: int, levels: np.ndarray,
+                gamma: float) -> np.ndarray:
+    """(levels, n_colours, 3) uint8: the projection's own colouring of (level, depth cell centre)."""
+    d0, d1 = d_range
+    depth = (d0 + (np.arange(n_colours) + 0.5) / n_colours * (d1 - d0)).astype(np.float32)
+    depth = np.ascontiguousarray(np.broadcast_to(depth, (levels.size, n_colours)))
+    vals = np.ascontiguousarray(np.broadcast_to(levels[:, None], depth.shape))
+    bright = np.empty(depth.shape, np.float32)
+    rgb = np.empty(depth.shape + (3,), np.float32)
+    with KERNEL_LOCK:  # signal given as a fraction of the display range: lo 0, scale 1
+        fin.finish_colour(vals, depth, 0.0, 1.0, gamma, d0, d1 - d0, lut, np.empty(0, np.float32),
+                         bright, rgb)
+    return np.rint(rgb * 255.0).astype(np.uint8)
+
+
+def _brightness_ticks(clim: Any) -> tuple[tuple[float, ...], tuple[str, ...], str]:
+    """Ticks across a 2-D key: signal values of the display range, or its fractions."""
+    if clim is None:
+        return (0.0, 0.5, 1.0), ("0", "0.5", "1"), "brightness (fraction of the display range)"
+    lo, hi = (float(c) for c in clim)
+    ticks, decimals = nice_ticks(lo, hi, max_ticks=4)
+    fractions = tuple((t - lo) / (hi - lo) for t in ticks)
+    return fractions, tuple(f"{t:.{decimals}f}" for t in ticks), "signal (display range)"
+
+
 def depth_legend(
     result_or_depth_range: Any,
     *,
@@ -117,37 +167,51 @@ def depth_legend(
     n_colours: int = 256,
     height: int = 16,
     orientation: str = "horizontal",
+    brightness_steps: Optional[int] = None,
 ) -> DepthLegend:
-    """Build the colour bar of a depth-coded projection.
+    """Build the key of a depth-coded projection: a colour bar, or depth × brightness.
 
     Parameters
     ----------
     result_or_depth_range : DepthCodedProjection or (float, float)
         A :func:`~viewer_plugin.kernels.depth_coded_projection` result (its
-        ``lut`` and ``depth_range`` are used) or an explicit (d0, d1) in µm.
+        ``lut``, ``depth_range``, ``clim`` and ``gamma`` are used) or an
+        explicit (d0, d1) in µm.
     cmap : str, Colormap or (N, 3) array, optional
-        Colour table; default the result's ``lut``, or "viridis" for an
-        explicit range. When given it replaces the result's table.
+        Colour table; default the result's ``lut``, or "CET-I1" (the default
+        of the projections) for an explicit range. When given it replaces
+        the result's table.
     n_colours : int, optional
-        Length of the bar in pixels (>= 2); colour cell i shows the table
-        entry at position ``(i + 0.5) / n_colours``.
+        Length of the depth axis in pixels (>= 2); cell i shows the depth at
+        position ``(i + 0.5) / n_colours`` of the range.
     height : int, optional
-        Thickness of the bar in pixels (>= 1), across the colour direction.
+        Thickness of a colour bar in pixels (>= 1), across the depth axis.
+        Not used by a 2-D key, whose thickness is ``brightness_steps``.
     orientation : {"horizontal", "vertical"}, optional
         Horizontal: d0 at the left. Vertical: d0 at the top.
+    brightness_steps : int, optional
+        Make a 2-D key with this many brightness levels (>= 2), evenly
+        spaced from 0 to 1 of the display range: pixel (level b, depth d)
+        is what the projection renders for a voxel at depth d whose signal
+        lies at fraction b of the display range, ``colour(d) * b ** gamma``
+        (computed by the projection's own colouring step). Default: a 1-D
+        colour bar.
 
     Returns
     -------
     DepthLegend
-        ``image`` (uint8 RGB), ``tick_depths_um``, ``tick_labels``,
-        ``tick_positions`` (pixels from the d0 edge), ``tick_fractions``,
-        ``depth_range``, ``orientation``, ``lut``, ``unit``, ``title``.
+        ``image`` (uint8 RGB), depth ticks (``tick_depths_um``,
+        ``tick_labels``, ``tick_positions`` in pixels from the d0 edge,
+        ``tick_fractions``), ``depth_range``, ``orientation``, ``lut``,
+        ``unit``, ``title``; for a 2-D key also ``brightness_levels``,
+        ``brightness_tick_fractions``, ``brightness_tick_labels`` (signal in
+        input units from the result's ``clim``), ``brightness_title``, ``gamma``.
 
     Raises
     ------
     ParameterError
         For a range whose d1 <= d0, an unknown colour table or orientation,
-        or n_colours / height too small.
+        or n_colours / height / brightness_steps too small.
 
     References
     ----------
@@ -163,34 +227,46 @@ def depth_legend(
     ((4, 256, 3), dtype('uint8'))
     >>> legend.tick_labels
     ('0', '20', '40', '60')
+    >>> key = depth_legend((0.0, 63.0), brightness_steps=5, orientation="vertical")
+    >>> key.image.shape, key.brightness_levels
+    ((256, 5, 3), (0.0, 0.25, 0.5, 0.75, 1.0))
     """
-    lut = None
-    if hasattr(result_or_depth_range, "depth_range") and hasattr(result_or_depth_range, "lut"):
-        d_range = check_interval(tuple(result_or_depth_range.depth_range), name="depth_range",
-                                 allow_none=False)
-        lut = np.asarray(result_or_depth_range.lut, dtype=np.float64)
+    source = result_or_depth_range
+    lut, clim, gamma = None, None, 1.0
+    if hasattr(source, "depth_range") and hasattr(source, "lut"):
+        d_range = check_interval(tuple(source.depth_range), name="depth_range", allow_none=False)
+        lut = np.asarray(source.lut, dtype=np.float64)
+        clim, gamma = getattr(source, "clim", None), float(getattr(source, "gamma", 1.0))
     else:
-        d_range = check_interval(result_or_depth_range, name="result_or_depth_range",
-                                 allow_none=False)
+        d_range = check_interval(source, name="result_or_depth_range", allow_none=False)
     if cmap is not None or lut is None:
-        lut = resolve_lut("viridis" if cmap is None else cmap)
+        lut = resolve_lut(DEFAULT_CMAP if cmap is None else cmap)
     n_colours = check_int(n_colours, name="n_colours", low=2)
     height = check_int(height, name="height", low=1)
     orientation = check_choice(orientation, name="orientation", choices=ORIENTATIONS)
     d0, d1 = d_range
-    centres = (np.arange(n_colours) + 0.5) / n_colours
-    bar = np.rint(lut[lut_index(centres, lut.shape[0])] * 255).astype(np.uint8)
-    if orientation == "horizontal":
-        image = np.broadcast_to(bar[None, :, :], (height, n_colours, 3)).copy()
-    else:
-        image = np.broadcast_to(bar[:, None, :], (n_colours, height, 3)).copy()
     ticks, decimals = nice_ticks(d0, d1)
     if not ticks:
         fail("result_or_depth_range", "a range containing at least one tick", d_range)
     fractions = tuple((t - d0) / (d1 - d0) for t in ticks)
+    extra: dict[str, Any] = {}
+    if brightness_steps is None:
+        centres = (np.arange(n_colours) + 0.5) / n_colours
+        bar = np.rint(lut[lut_index(centres, lut.shape[0])] * 255).astype(np.uint8)
+        image = np.broadcast_to(bar[None, :, :], (height, n_colours, 3)).copy()
+    else:
+        steps = check_int(brightness_steps, name="brightness_steps", low=2)
+        levels = np.linspace(0.0, 1.0, steps)
+        image = _key_pixels(lut, d_range, n_colours, levels, gamma)
+        b_fractions, b_labels, b_title = _brightness_ticks(clim)
+        extra = dict(brightness_levels=tuple(float(b) for b in levels),
+                     brightness_tick_fractions=b_fractions, brightness_tick_labels=b_labels,
+                     brightness_title=b_title, gamma=gamma)
+    if orientation == "vertical":
+        image = np.ascontiguousarray(np.swapaxes(image, 0, 1))
     return DepthLegend(
         image=image, depth_range=(d0, d1), tick_depths_um=tuple(ticks),
         tick_labels=tuple(f"{t:.{decimals}f}" for t in ticks),
         tick_positions=tuple(f * n_colours for f in fractions), tick_fractions=fractions,
-        orientation=orientation, lut=lut,
+        orientation=orientation, lut=lut, **extra,
     )

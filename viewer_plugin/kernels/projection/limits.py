@@ -19,6 +19,7 @@ __all__ = [
     "percentiles_from_sample",
     "resolve_clim",
     "strided_samples",
+    "weight_levels",
     "weighted_clim",
 ]
 
@@ -27,6 +28,9 @@ CLIM_PERCENTILES = (0.1, 99.9)
 #: Samples used to estimate percentiles (integers / floating point).
 SAMPLE_INT = 2**20
 SAMPLE_FLOAT = 2**18
+#: Samples for the background floor of weighted depths: the sigma-clipped level from 65536
+#: values is within about 0.01 of its value from four times as many, at a quarter of the time.
+SAMPLE_FLOOR = 2**16
 
 
 def _strided(v: Any, budget: int) -> Any:
@@ -106,11 +110,12 @@ def background_floor(v: Any, n_sigma: float = 3.0, *, sample: Any = None) -> flo
     """Background level + *n_sigma* spreads, from a strided subsample.
 
     Uses :func:`..primitives.background.background_level` (sigma-clipped mean) on about
-    2.6e5 values; the default lower limit of weighted depth codes. *sample*
-    replaces the subsample.
+    65536 values: what the weights of weighted depth codes are measured from,
+    and the default lower limit of their display. *sample* replaces the
+    subsample.
     """
     if sample is None:
-        (sample,) = strided_samples(v, SAMPLE_FLOAT)
+        (sample,) = strided_samples(v, SAMPLE_FLOOR)
     sample = np.asarray(sample).astype(np.float64)
     sample = sample[np.isfinite(sample)]
     if sample.size == 0:
@@ -119,15 +124,44 @@ def background_floor(v: Any, n_sigma: float = 3.0, *, sample: Any = None) -> flo
     return float(bg.level + n_sigma * bg.sigma)
 
 
+def weight_levels(v: Any, clim: Any = None) -> tuple[tuple[float, float], float, float]:
+    """Display limits, background floor and weight scale of a weighted depth code.
+
+    The weights of "weighted" are the signal above the background floor
+    (:func:`background_floor`), whatever the display limits; the scale
+    ``1 / (top - floor)``, *top* the largest finite sampled value, only keeps
+    the sums near 1 (it cancels in the mean depth). Everything comes from one
+    strided sample pass (one graph for a dask stack), so numpy and dask stacks
+    get the same numbers.
+
+    Returns
+    -------
+    ((float, float), float, float)
+        The user's *clim* (checked) or the default limits (percentiles, lo
+        raised to the floor), the floor, and the weight scale.
+    """
+    pair = check_interval(clim, name="clim")
+    budgets = (SAMPLE_FLOOR,) if pair is not None else (_clim_budget(v), SAMPLE_FLOOR)
+    samples = strided_samples(v, *budgets)
+    for_floor = samples[-1]
+    floor = background_floor(v, sample=for_floor)
+    finite = for_floor[np.isfinite(for_floor)] if for_floor.dtype.kind == "f" else for_floor
+    top = float(finite.max()) if finite.size else floor
+    scale = 1.0 / (top - floor) if top > floor else 1.0
+    if pair is None:
+        lo, hi = estimate_clim(v, CLIM_PERCENTILES, sample=samples[0])
+        lo = max(lo, floor)
+        pair = lo, (hi if hi > lo else lo + max(1.0, abs(lo)) * 1e-6)
+    return pair, floor, scale
+
+
 def weighted_clim(v: Any) -> tuple[float, float]:
     """Default limits of weighted depth codes: percentiles, lo raised to the background floor.
 
-    Both subsamples are taken in one pass (one graph for a dask stack).
+    The lower limit only sets brightness; the weights use the floor itself
+    (:func:`weight_levels`). Both subsamples are taken in one pass.
     """
-    for_clim, for_floor = strided_samples(v, _clim_budget(v), SAMPLE_FLOAT)
-    lo, hi = estimate_clim(v, CLIM_PERCENTILES, sample=for_clim)
-    lo = max(lo, background_floor(v, sample=for_floor))
-    return lo, (hi if hi > lo else lo + max(1.0, abs(lo)) * 1e-6)
+    return weight_levels(v)[0]
 
 
 def display_limits(stack: Any, *, axis: int = 0) -> tuple[float, float]:

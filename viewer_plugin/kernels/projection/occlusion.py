@@ -1,9 +1,12 @@
 """Occlusion projection: nearer structures partly hide deeper ones.
 
-The emission-absorption model of Max (1995): each voxel emits light in
-proportion to its normalised value and absorbs in proportion to it, and the
-slices are composited front to back with Porter & Duff's "over" operator. A
-rendering for looking, not a measurement.
+The emission-absorption model of Max (1995): each voxel has the colour of
+its normalised value u and an extinction in proportion to u, so it emits in
+proportion to u times its opacity (about u squared times density times step
+when the density is small: the low-density limit is a sum of squared
+intensities, not of intensities); the slices are composited front to back
+with Porter & Duff's "over" operator. The display limits set u, so they also
+change which structures hide which. A rendering for looking, not a measurement.
 """
 
 from __future__ import annotations
@@ -14,7 +17,7 @@ from typing import Any, Optional
 import numpy as np
 
 from ..._shared.progress import Progress
-from ..._shared.validation import check_choice, check_number
+from ..._shared.validation import check_choice, check_int, check_number, fail
 from . import _compiled as nb
 from ._common import depth_view
 from .colour import depth_colours, resolve_lut
@@ -85,6 +88,20 @@ def _occlusion_fold(v: Any, lo: float, hi: float, kappa: float, reverse: bool,
     return colour
 
 
+def _check_colour_axis(stack: Any, axis: int, depth_axis: Optional[int], cmap: Any) -> None:
+    """Refuse colours by depth when the rays do not run along the depth axis."""
+    if depth_axis is None:
+        return
+    ndim = len(np.shape(stack))
+    depth = check_int(depth_axis, name="depth_axis", low=-ndim)
+    if depth >= ndim:
+        fail("depth_axis", f"an axis from {-ndim} to {ndim - 1}", depth_axis)
+    if cmap is not None and depth % ndim != int(axis) % ndim:
+        fail("cmap", "no colour map for a view along another axis than the depth axis",
+             cmap, hint=f"axis {axis} is not the depth axis {depth_axis}: every ray of a side "
+             "view runs at one depth, so colour the grey view by depth_colours of its rows")
+
+
 def occlusion_projection(
     stack: Any,
     *,
@@ -94,16 +111,17 @@ def occlusion_projection(
     view: str = "top",
     cmap: Any = None,
     axis: int = 0,
+    depth_axis: Optional[int] = None,
     progress: Progress = None,
 ) -> np.ndarray:
     """Emission-absorption projection: bright structures hide what lies behind.
 
-    Each voxel emits its normalised intensity ``u = clip((I - lo) / (hi -
-    lo), 0, 1)`` and absorbs with extinction ``density * u`` per µm. A slice
-    of thickness *z_step* then has opacity ``a = 1 - exp(-density * u *
-    z_step)`` and colour u, composited front to back: ``C += T * a * u``,
-    ``T *= 1 - a``. A homogeneous slab of value u and thickness L gives
-    exactly ``u * (1 - exp(-density * u * L))`` whatever the number of slices.
+    Each voxel has colour ``u = clip((I - lo) / (hi - lo), 0, 1)`` and
+    extinction ``density * u`` per µm. A slice of thickness *z_step* then has
+    opacity ``a = 1 - exp(-density * u * z_step)`` and emits ``a * u`` (value
+    times opacity), composited front to back: ``C += T * a * u``, ``T *= 1 -
+    a``. A homogeneous slab of value u and thickness L gives exactly ``u *
+    (1 - exp(-density * u * L))`` whatever the number of slices.
 
     Parameters
     ----------
@@ -112,7 +130,8 @@ def occlusion_projection(
         NaN counts as no signal. Not modified.
         A dask array is computed as one graph on the active dask scheduler.
     z_step : float, optional
-        Slice thickness in µm (> 0).
+        Step in µm (> 0) along *axis*, the direction of the rays (the pixel
+        size of that axis for a side view).
     density : float, optional
         Extinction per µm of a fully bright voxel (>= 0). Default ``None``:
         ``DEFAULT_OPTICAL_DEPTH / (n * z_step)`` = 10 / stack depth, i.e. a
@@ -123,15 +142,26 @@ def occlusion_projection(
         bright structure met from the viewing side.
     clim : (float, float), optional
         (lo, hi) display limits; default the 0.1 and 99.9 percentiles,
-        estimated from a strided subsample of the stack.
+        estimated from a strided subsample of the stack. They set u, and so
+        both brightness and opacity: changing them changes which structures
+        hide which.
     view : {"top", "bottom"}, optional
-        Composite from slice 0 ("top") or from the last slice ("bottom").
+        Composite from the first slice along *axis* ("top") or from the last
+        ("bottom").
     cmap : str, Colormap or (N, 3) array, optional
-        When given, each slice emits ``u * colour(depth)`` (depth from the
-        first to the last slice through the colour table, as in
-        :func:`depth_coded_projection`) and the result is RGB.
+        When given, each slice emits ``a * u * colour(depth)`` (depth from
+        the first to the last slice through the colour table, as in
+        :func:`depth_coded_projection`) and the result is RGB. Only for a
+        view along the depth axis: refused when *depth_axis* names another
+        axis than *axis* (in a side view each ray runs at one depth; colour
+        the grey view by :func:`depth_colours` of its rows instead).
     axis : int, optional
-        The depth axis (default 0); other axes are kept.
+        The axis the rays run along (default 0): the depth axis for a view
+        from the top or bottom, a lateral axis for a side view. Other axes
+        are kept.
+    depth_axis : int, optional
+        The stack's depth axis when it is not *axis* (a side view); default:
+        *axis* is the depth axis.
     progress : callable, optional
         ``progress(done, total)`` as z-chunks (numpy) or groups of blocks
         (dask) are folded; may raise Cancelled, which stops the computation.
@@ -147,7 +177,8 @@ def occlusion_projection(
     ------
     ParameterError
         For a bad stack, z_step <= 0, density < 0, clim with hi <= lo, an
-        unknown view or colour table.
+        unknown view or colour table, a depth_axis out of range, or a cmap
+        with a depth_axis other than axis.
 
     Notes
     -----
@@ -176,6 +207,7 @@ def occlusion_projection(
     True
     """
     v, n = depth_view(stack, axis)
+    _check_colour_axis(stack, axis, depth_axis, cmap)
     z_step = check_number(z_step, name="z_step", low=0.0, low_open=True)
     if density is None:
         density = default_density(n, z_step)
