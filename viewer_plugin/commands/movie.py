@@ -14,6 +14,7 @@ import argparse
 from typing import Any
 
 from ..jobs.choices import (
+    DEFAULT_CMAP,
     DEFAULT_FPS,
     DEFAULT_FRAMES,
     DEFAULT_MOVIE_METHOD,
@@ -54,7 +55,7 @@ def register(sub: Any) -> None:
     parser.add_argument("--over", default="angle", choices=MOVIE_OVER,
                         help="angle: turn the stack (default); t: one top view per time point")
     parser.add_argument("--cmap", default=None, metavar="NAME",
-                        help="matplotlib colour map of depth (depth-colour: default viridis; "
+                        help=f"colour map of depth (depth-colour: default {DEFAULT_CMAP}; "
                              "occlusion: colour each voxel by its depth)")
     parser.add_argument("--z-step", type=float, default=None, metavar="UM",
                         help="slice spacing in um (default: from the file's voxel size)")

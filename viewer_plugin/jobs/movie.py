@@ -29,6 +29,7 @@ from .._shared.validation import (
     fail,
 )
 from .choices import (
+    DEFAULT_CMAP,
     DEFAULT_FPS,
     DEFAULT_FRAMES,
     DEFAULT_MOVIE_METHOD,
@@ -71,7 +72,8 @@ class MovieOptions:
     over : str
         "angle" (a turning movie) or "t" (one top view per time point).
     cmap : str or None
-        Colour map of depth ("depth-colour", default viridis; "occlusion":
+        Colour map of depth ("depth-colour", default the depth colour map of
+        :mod:`~viewer_plugin.jobs.choices`; "occlusion":
         each voxel emits the colour of its depth, default grey).
     clim : (float, float) or None
         Display limits in input units (default: percentiles, shared by all frames).
@@ -284,7 +286,7 @@ def _movie(selection: Selection, options: MovieOptions, views: Any, pixel: tuple
 def _cmap_name(options: MovieOptions, views: Any) -> str | None:
     if views.lut is None:
         return None
-    return options.cmap if isinstance(options.cmap, str) else "viridis"
+    return options.cmap if isinstance(options.cmap, str) else DEFAULT_CMAP
 
 
 def make_movie(selection: Selection, options: MovieOptions, *, depth_axis: int | None = None,

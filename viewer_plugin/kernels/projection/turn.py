@@ -37,7 +37,7 @@ from ..._shared.validation import (
     is_dask,
 )
 from ..primitives.chunks import DEFAULT_CHUNK_BYTES, plane_nbytes
-from .colour import resolve_lut
+from .colour import DEFAULT_CMAP, resolve_lut
 from .depth_colour import depth_coded_projection
 from .limits import display_limits
 from .occlusion import DEFAULT_OPTICAL_DEPTH, occlusion_projection
@@ -480,7 +480,7 @@ def _shared(options: tuple, sample: Any, axis: int, step_um: float, thickness_um
     if method == "peak" and cmap is not None:
         fail("cmap", "no colour map for method 'peak' (grey frames)", cmap)
     if method == "depth-colour" and cmap is None:
-        cmap = "viridis"
+        cmap = DEFAULT_CMAP
     lut = None if cmap is None else resolve_lut(cmap)
     if density is not None:
         density = check_number(density, name="density", low=0.0)
@@ -512,7 +512,7 @@ def turning_views(volume: TurnVolume, *, frames: int = 36, method: str = "occlus
         maximum along each ray in grey; or colour = depth of the strongest
         voxel measured from the viewer, with brightness from its intensity.
     cmap : str, Colormap or (N, 3) array, optional
-        Colour table of depth ("depth-colour": default "viridis";
+        Colour table of depth ("depth-colour": default :data:`DEFAULT_CMAP`;
         "occlusion": each voxel emits the colour of its depth, default grey).
     clim : (float, float), optional
         Display limits; default the 0.1 and 99.9 percentiles of the resampled volume.
@@ -567,7 +567,7 @@ def series_views(stack: Any, *, z_step: float = 1.0, method: str = "depth-colour
     method : {"depth-colour", "occlusion", "peak"}, optional
         As in :func:`turning_views`; depth is measured from the first slice.
     cmap : str, Colormap or (N, 3) array, optional
-        Colour table of depth (default "viridis" for "depth-colour").
+        Colour table of depth (default :data:`DEFAULT_CMAP` for "depth-colour").
     clim : (float, float), optional
         Display limits; default the 0.1 and 99.9 percentiles of the whole series.
     density : float, optional
