@@ -33,7 +33,7 @@ from .bleaching import (
     equalise_checked,
     separate_passes,
 )
-from .figure import figure_plane, write_figure
+from .figure import figure_panel, figure_plane, figure_planes, write_figure
 from .movie import (
     Movie,
     MovieOptions,
@@ -69,7 +69,9 @@ __all__ = [
     "correct_checked",
     "correct_measured",
     "equalise_checked",
+    "figure_panel",
     "figure_plane",
+    "figure_planes",
     "geometry_of",
     "make_movie",
     "measure_attenuation",

@@ -8,8 +8,15 @@ from typing import Any
 import numpy as np
 
 from .._shared.progress import Progress, sub_progress
-from .._shared.validation import check_choice
-from .choices import CMAP_KIND, DEFAULT_CMAP, DEPTH_CODED, PROJECTION_METHODS, saturation_warning
+from .._shared.validation import check_choice, check_interval
+from .choices import (
+    CMAP_KIND,
+    DEFAULT_CMAP,
+    DEPTH_CODED,
+    DEPTH_MAP_CMAPS,
+    PROJECTION_METHODS,
+    saturation_warning,
+)
 from .provenance import provenance
 from .stack import (
     Geometry,
@@ -36,9 +43,12 @@ class ProjectionOptions:
     cmap : str or None
         Colour map of depth (depth-coded methods; default
         :data:`~viewer_plugin.jobs.choices.DEFAULT_CMAP`); for "occlusion" a
-        colour map makes each slice emit the colour of its depth (None: grey).
+        colour map makes each slice emit the colour of its depth (None: grey);
+        for "max" the colours of the depth map in figures (default the first of
+        :data:`~viewer_plugin.jobs.choices.DEPTH_MAP_CMAPS`).
     depth_range : (float, float) or None
-        Depths in µm at the two ends of the colour map (default: whole stack).
+        Depths in µm at the two ends of the colour map (default: whole stack;
+        for "max", of the depth map's colours in figures).
     clim : (float, float) or None
         Display limits in input units (default: automatic percentiles).
     gamma : float
@@ -165,6 +175,9 @@ def project_stack(selection: Selection, options: ProjectionOptions, *,
     sides: tuple[SideView, ...] = ()
     if method == "max":
         result = kp.peak_projection(data, axis=axis, z_step=z_step, progress=progress)
+        entries.update(depth_map_cmap=options.cmap or DEPTH_MAP_CMAPS[0], depth_range_um=list(
+            check_interval(options.depth_range, name="depth_range")
+            or _whole_depth(int(data.shape[axis]), z_step)))
     elif method in DEPTH_CODED:
         result, used = _depth_coded(data, axis, z_step, options, progress)
         entries.update(used)
@@ -208,7 +221,7 @@ def _occlusion(data: Any, axis: int, z_step: float, options: ProjectionOptions, 
     density = options.density if options.density is not None else kp.default_density(n, z_step)
     clim = options.clim
     parts = 3 if options.side_views else 1
-    if clim is None and options.side_views:  # one contrast for all three views
+    if clim is None:  # the kernel's default, recorded; and one contrast for all three views
         clim = kp.display_limits(data, axis=axis)
     top = kp.occlusion_projection(data, z_step=z_step, density=density, clim=clim,
                                   view=options.view, cmap=options.cmap, axis=axis,
@@ -219,7 +232,14 @@ def _occlusion(data: Any, axis: int, z_step: float, options: ProjectionOptions, 
     used = {"density_per_um": density, "view": options.view, "clim": options.clim,
             "clim_used": None if clim is None else [float(v) for v in clim], "cmap": options.cmap,
             "side_views": bool(options.side_views), "note": "a rendering, not a measurement"}
+    if options.cmap is not None:  # the depths the colours span: first to last slice
+        used["depth_range_um"] = list(_whole_depth(n, z_step))
     return top, tuple(sides), used
+
+
+def _whole_depth(n: int, z_step: float) -> tuple[float, float]:
+    """First to last slice in µm (one step for a single slice), as the kernels' colours span."""
+    return 0.0, (n - 1) * z_step if n > 1 else z_step
 
 
 def _side_views(data: Any, axis: int, z_step: float, density: float, clim: Any, cmap: Any,
