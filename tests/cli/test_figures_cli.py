@@ -77,3 +77,64 @@ def test_existing_outputs_are_refused_before_any_work(inputs, tmp_path):
     (out / "shallow.png").write_bytes(b"precious")
     assert_one_line_error(run_cli("figures", shallow, "-o", out), "exists", "--overwrite")
     assert (out / "shallow.png").read_bytes() == b"precious" and not (out / "summary.csv").exists()
+
+
+def test_occlusion_figures_share_one_density(inputs, tmp_path):
+    """Occlusion figures of a folder: one density, the default of the deepest stack
+    (10 / (15 slices x 2 µm), the kernels' documented default), and each says it is a rendering."""
+    _, shallow, deep, _ = inputs
+    out = tmp_path / "figs"
+    assert main(["figures", str(shallow), str(deep), "-o", str(out), "--method", "occlusion",
+                 "--same-contrast", "--format", "pdf"]) == 0
+    cars = [json.loads((out / f"{n}.pdf.json").read_text(encoding="utf-8")) for n in ("shallow", "deep")]
+    for car in cars:
+        assert car["parameters"]["density_per_um"] == pytest.approx(10.0 / 30.0)
+        assert "not a measurement" in car["methods"] and "Max 1995" in car["methods"]
+    assert cars[0]["parameters"]["clim_used"] == pytest.approx(cars[1]["parameters"]["clim_used"])
+    rows = {row["file"]: row for row in _summary(out)}
+    assert rows[str(deep)]["display_range"] and rows[str(deep)]["status"] == "ok"
+
+
+def test_peak_depth_map_figures_share_one_depth_range(inputs, tmp_path):
+    """max figures: the depth map's colour bar spans the widest stack (0-28 µm) in every figure,
+    and summary.csv says so."""
+    _, shallow, deep, _ = inputs
+    out = tmp_path / "figs"
+    assert main(["figures", str(shallow), str(deep), "-o", str(out), "--method", "max",
+                 "--cmap", "magma", "--blank", "150"]) == 0
+    for name in ("shallow", "deep"):
+        car = json.loads((out / f"{name}.png.json").read_text(encoding="utf-8"))
+        assert car["colour_bar"]["depth_range_um"] == pytest.approx([0.0, 28.0])
+        assert car["colour_bar"]["colour_map"] == "magma"
+        assert car["parameters"]["blank_at_or_below"] == 150.0
+    rows = {row["file"]: row for row in _summary(out)}
+    assert rows[str(shallow)]["depth_range_um"] == "0 28"
+
+
+def test_help_lists_every_method():
+    from viewer_plugin.jobs.choices import METHOD_LABELS, PROJECTION_METHODS
+
+    result = run_cli("figures", "--help")
+    assert result.returncode == 0
+    text = " ".join(result.stdout.split())  # argparse wraps the help
+    for method in PROJECTION_METHODS:
+        assert " ".join(METHOD_LABELS[method].split()) in text
+
+
+@pytest.mark.parametrize(
+    ("extra", "fragment"),
+    [
+        (["--method", "max", "--same-contrast"], "--same-contrast"),
+        (["--method", "max", "--clim", "0", "10"], "--clim"),
+        (["--method", "occlusion", "--depth-range", "0", "10"], "--depth-range"),
+        (["--density", "0.2"], "--density"),
+        (["--view", "bottom"], "--view"),
+        (["--blank", "100"], "--blank"),
+        (["--method", "mip"], "--method"),
+    ],
+)
+def test_bad_combinations_exit_2(inputs, tmp_path, extra, fragment):
+    _, shallow, _, _ = inputs
+    out = tmp_path / "figs"
+    assert_one_line_error(run_cli("figures", shallow, "-o", out, *extra), fragment)
+    assert not out.exists()  # refused before any work

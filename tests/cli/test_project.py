@@ -113,7 +113,10 @@ def test_existing_figure_sidecar_refused_before_work(stack_file, tmp_path):
     [
         (["--density", "0.2"], "--density"),
         (["--method", "max", "--cmap", "viridis"], "--cmap"),
-        (["--method", "max", "--figure", "f.png"], "--figure"),
+        (["--method", "max", "--depth-range", "0", "5"], "--depth-range"),  # figures only
+        (["--method", "max", "--clim", "0", "5", "--figure", "f.png"], "--clim"),
+        (["--method", "occlusion", "--depth-range", "0", "5"], "--depth-range"),
+        (["--figure", "f.jpg"], "--figure"),
         (["--gamma", "0"], "gamma"),
         (["--cmap", "no_such_map"], "no_such_map"),
         (["--depth-range", "5", "1"], "--depth-range"),  # the option, as typed

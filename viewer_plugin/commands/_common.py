@@ -65,6 +65,16 @@ def check_outputs(args: Any, options: tuple[str, ...] = ("output", "report", "pl
     return out
 
 
+def refuse_set(args: Any, why: str, **defaults: Any) -> None:
+    """Refuse the first option *args* sets away from its default (``name=default``): ``--name: why``.
+
+    For options that do not fit the chosen method: say so instead of ignoring them.
+    """
+    for name, default in defaults.items():
+        if getattr(args, name) != default:
+            raise CommandError(f"--{name.replace('_', '-')}: {why}")
+
+
 def check_input(path: str, *, name: str = "INPUT") -> Path:
     """An input path that exists and is a file or an OME-Zarr folder; say which when it is not."""
     from ..io import is_ome_zarr

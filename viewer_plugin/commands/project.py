@@ -15,7 +15,14 @@ import dataclasses
 from pathlib import Path
 from typing import Any
 
-from ..jobs.choices import CMAP_HELP, DEFAULT_METHOD, DEPTH_CODED, PROJECTION_METHODS, VIEWS
+from ..jobs.choices import (
+    CMAP_HELP,
+    DEFAULT_METHOD,
+    DEPTH_CODED,
+    DEPTH_MAP_CMAPS,
+    PROJECTION_METHODS,
+    VIEWS,
+)
 from ._common import (
     CommandError,
     TerminalProgress,
@@ -24,6 +31,7 @@ from ._common import (
     in_cli_words,
     print_notes,
     read_input,
+    refuse_set,
     write_image,
 )
 
@@ -43,9 +51,11 @@ def register(sub: Any) -> None:
                         help=f"projection (default: {DEFAULT_METHOD})")
     parser.add_argument("--cmap", default=None, metavar="NAME",
                         help=f"{CMAP_HELP}. With occlusion: colour each slice by its depth "
-                             "(default grey)")
+                             f"(default grey). With max and --figure: the colours of the depth map "
+                             f"(default {DEPTH_MAP_CMAPS[0]})")
     parser.add_argument("--depth-range", nargs=2, type=float, metavar=("D0", "D1"),
-                        help="depths in um at the two ends of the colour map (default: whole stack)")
+                        help="depths in um at the two ends of the colour map (default: whole "
+                             "stack); with max, of the figure's depth map")
     parser.add_argument("--clim", nargs=2, type=float, metavar=("LO", "HI"),
                         help="display limits in input units (default: 0.1 and 99.9 percentiles)")
     parser.add_argument("--gamma", type=float, default=1.0, help="brightness gamma (default 1)")
@@ -57,34 +67,39 @@ def register(sub: Any) -> None:
     parser.add_argument("--z-step", type=float, default=None, metavar="UM",
                         help="slice spacing in um (default: from the file's voxel size)")
     parser.add_argument("--figure", default=None, metavar="FIG",
-                        help="also save a figure (.png/.tif/.pdf) with its key (depth in um x "
-                             "signal) and scale bar in um, plus FIG.json (parameters) and "
-                             "FIG.methods.txt")
+                        help="also save a figure (.png/.tif/.pdf/.svg) with a scale bar in um and "
+                             "its key: depth in um x signal (depth-coded methods), the depth map "
+                             "of each maximum with its colour bar in um (max), or a rendering "
+                             "note and, with --cmap, the colour bar of depth (occlusion); plus "
+                             "FIG.json (parameters) and FIG.methods.txt")
+    parser.add_argument("--blank", type=float, default=None, metavar="LO",
+                        help="with max and --figure: pixels whose maximum is at or below LO "
+                             "(input units) are drawn black, without a depth")
     finish_parser(parser, run, channel_help="channel index for files with several channels")
 
 
 def _check_options(args: argparse.Namespace) -> None:
     """Options that do not fit the method: say so instead of ignoring them."""
     if args.method != "occlusion":
-        if args.density is not None:
-            raise CommandError("--density: only used with --method occlusion")
-        if args.view != "top":
-            raise CommandError("--view: only used with --method occlusion")
-    if args.method in ("occlusion", "max") and args.depth_range is not None:
-        raise CommandError(f"--depth-range: not used with --method {args.method}")
-    if args.method == "max":
-        for name in ("cmap", "clim"):
-            if getattr(args, name) is not None:
-                raise CommandError(f"--{name}: not used with --method max")
-        if args.gamma != 1.0:
-            raise CommandError("--gamma: not used with --method max")
-    if args.figure is not None and args.method not in DEPTH_CODED:
-        raise CommandError(f"--figure: needs a depth-coded method ({', '.join(DEPTH_CODED)}), "
-                           f"got --method {args.method}")
+        refuse_set(args, "only used with --method occlusion", density=None, view="top")
+    else:
+        refuse_set(args, "not used with --method occlusion", depth_range=None)
+    if args.method != "max":
+        refuse_set(args, "only used with --method max", blank=None)
+    else:
+        refuse_set(args, "not used with --method max", clim=None, gamma=1.0)
+        if args.figure is None:
+            refuse_set(args, "with --method max only used by --figure (the colours of the depth "
+                       "map)", cmap=None, depth_range=None, blank=None)
 
 
 def _check_figure_paths(figure: str, *, overwrite: bool) -> Path:
+    from ..jobs.figure import FIGURE_SUFFIXES
+
     path = Path(figure)
+    if path.suffix.lower() not in FIGURE_SUFFIXES:
+        raise CommandError(f"--figure: expected a file name ending in {', '.join(FIGURE_SUFFIXES)}, "
+                           f"got {path.name}")
     for target in (path, path.with_name(path.name + ".json"), path.with_name(path.name + ".methods.txt")):
         check_output_path(target, overwrite=overwrite, name="--figure")
     return path
@@ -120,7 +135,8 @@ def run(args: argparse.Namespace) -> int:
     print(f"{output}: {args.method} projection, {geometry.axes} {tuple(pixels.shape)} {pixels.dtype}"
           + (f", depth {d_range[0]:g}-{d_range[1]:g} um" if d_range else ""))
     if figure is not None:
-        files = write_figure(projected, figure, overwrite=args.overwrite)
+        files = write_figure(projected, figure, overwrite=args.overwrite,
+                             blank_at_or_below=args.blank)
         print(f"{files.figure}: figure; parameters in {files.sidecar.name}, methods sentence in "
               f"{files.methods.name}")
     return 0

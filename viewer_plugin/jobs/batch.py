@@ -1,7 +1,8 @@
 """The batch figure job: one comparable figure per stack, many stacks in one call.
 
 All figures of one call share one depth range (the widest of the inputs unless
-given), and with ``same_contrast`` one display range, so panels made from
+given), with ``same_contrast`` one display range, and occlusion figures one
+density (that of the deepest stack unless given), so panels made from
 different stacks compare. A stack that fails is recorded with its error and
 the others go on.
 """
@@ -84,8 +85,8 @@ def planned_outputs(inputs: Sequence[Path], outdir: Path, fmt: str) -> dict[Path
     return out
 
 
-def _plan(row: BatchRow, channel: int | None, z_step: float | None) -> float:
-    """Open one input (lazily) and return the depth it spans in µm; errors go to the row."""
+def _plan(row: BatchRow, channel: int | None, z_step: float | None) -> tuple[float, int]:
+    """Open one input (lazily) and return its z-step in µm and its slices; errors go to the row."""
     from ..io import read_stack
 
     # lazily: a batch holds many stacks open at once, each is read when its figure is made
@@ -97,7 +98,7 @@ def _plan(row: BatchRow, channel: int | None, z_step: float | None) -> float:
         fail(str(row.file), "a z-stack (a Z axis)", f"<axes {stack.axes}>")
     step, _, _ = axis_step(stack, axis, z_step)
     row.selection = selection
-    return step * (int(stack.data.shape[axis]) - 1)
+    return step, int(stack.data.shape[axis])
 
 
 def _shared_contrast(rows: list[BatchRow]) -> tuple[float, float]:
@@ -111,7 +112,7 @@ def _shared_contrast(rows: list[BatchRow]) -> tuple[float, float]:
 
 def make_figures(inputs: Sequence[Path], outputs: dict[Path, Path], options: ProjectionOptions, *,
                  channel: int | None = None, same_contrast: bool = False, overwrite: bool = False,
-                 progress: Progress = None) -> list[BatchRow]:
+                 blank_at_or_below: float | None = None, progress: Progress = None) -> list[BatchRow]:
     """Make one figure per input with shared depth (and, if asked, display) range.
 
     Parameters
@@ -122,13 +123,16 @@ def make_figures(inputs: Sequence[Path], outputs: dict[Path, Path], options: Pro
         Figure path per input (see :func:`planned_outputs`).
     options : ProjectionOptions
         Method and display options; ``depth_range`` None means the widest
-        depth of the inputs, shared by all.
+        depth of the inputs, shared by all; for "occlusion", ``density`` None
+        means the default density of the deepest input, shared by all.
     channel : int, optional
         Channel of multi-channel inputs.
     same_contrast : bool
         Share one display range (the widest automatic one) unless ``options.clim`` is given.
     overwrite : bool
         Replace existing figure files.
+    blank_at_or_below : float, optional
+        "max": pixels whose maximum is at or below this value are drawn black.
     progress : callable, optional
         ``progress(done, total)`` over inputs; may raise Cancelled.
 
@@ -137,35 +141,42 @@ def make_figures(inputs: Sequence[Path], outputs: dict[Path, Path], options: Pro
     list of BatchRow
         One per input, in order; ``status`` is "ok" or the error text.
     """
+    from ..kernels.projection import default_density
+
     rows = [BatchRow(path) for path in inputs]
-    depths: list[float] = []
+    plans: list[tuple[float, int]] = []
     for row in rows:
         try:
-            depths.append(_plan(row, channel, options.z_step))
+            plans.append(_plan(row, channel, options.z_step))
         except (ValueError, OSError) as exc:
             row.status = f"error: {exc}"
     ready = [r for r in rows if r.status == "ok"]
     shared = options
     if ready and options.depth_range is None:
-        shared = dataclasses.replace(shared, depth_range=(0.0, max(max(depths), 1e-9)))
+        deepest = max(step * (n - 1) for step, n in plans)
+        shared = dataclasses.replace(shared, depth_range=(0.0, max(deepest, 1e-9)))
+    if ready and options.method == "occlusion" and options.density is None:
+        shared = dataclasses.replace(shared, density=min(default_density(n, step)
+                                                         for step, n in plans))
     if ready and same_contrast and options.clim is None:
         shared = dataclasses.replace(shared, clim=_shared_contrast(ready))
     for done, row in enumerate(rows):
         if row.status == "ok":
-            _one_figure(row, outputs[row.file], shared, overwrite,
-                        sub_progress(progress, done, len(rows)))
+            _one_figure(row, outputs[row.file], shared, sub_progress(progress, done, len(rows)),
+                        overwrite=overwrite, blank_at_or_below=blank_at_or_below)
         report_progress(progress, done + 1, len(rows))
     return rows
 
 
-def _one_figure(row: BatchRow, path: Path, options: ProjectionOptions, overwrite: bool,
-                progress: Progress) -> None:
-    """Project one input and write its figure; an error is recorded on the row."""
+def _one_figure(row: BatchRow, path: Path, options: ProjectionOptions, progress: Progress,
+                **figure: Any) -> None:
+    """Project one input and write its figure (*figure*: options of write_figure); an error is
+    recorded on the row."""
     from .figure import write_figure
 
     try:
         projected = project_stack(row.selection, options, progress=progress)
-        files = write_figure(projected, path, overwrite=overwrite)
+        files = write_figure(projected, path, **figure)
     except Cancelled:
         raise
     except (ValueError, OSError) as exc:
