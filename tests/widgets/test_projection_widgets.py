@@ -6,6 +6,8 @@ along the depth axis (numpy documentation: argmax returns the first occurrence o
 
 from __future__ import annotations
 
+import json
+
 import numpy as np
 import pytest
 
@@ -457,3 +459,83 @@ def test_dock_figure_is_drawn_to_scale(make_napari_viewer, qtbot, tmp_path, pixe
     files = widget.export_figure(tmp_path / "fig.png")
     assert files is not None
     check_figure_geometry(files.figure, shape_yx=data.shape[1:], pixel_um=pixel)
+
+
+@pytest.mark.parametrize("suffix", ["png", "svg"])
+@pytest.mark.parametrize("dock", ["PeakDepthWidget", "OcclusionWidget"])
+def test_peak_and_occlusion_figures_are_drawn_to_scale(make_napari_viewer, qtbot, tmp_path, dock,
+                                                       suffix):
+    """The peak depth map and occlusion docks export figures too; anisotropic pixels of
+    0.4 x 0.5 µm: aspect, scale bar, resolution, vector key and bar (tests/figure_checks.py)."""
+    from tests.cli.test_figure_geometry import mostly_black_stack
+    from tests.figure_checks import check_figure_geometry
+    from viewer_plugin.widgets import projection
+
+    viewer = make_napari_viewer(show=True)
+    data = mostly_black_stack()
+    viewer.add_image(data, name="aniso", scale=(1.5, 0.4, 0.5), axis_labels=("z", "y", "x"))
+    widget = getattr(projection, dock)(viewer)
+    assert not widget.export_button.enabled  # nothing to export yet
+    _run(qtbot, widget)
+    assert widget.export_button.enabled
+    files = widget.export_figure(tmp_path / f"fig.{suffix}")
+    assert files is not None
+    sidecar = check_figure_geometry(files.figure, shape_yx=data.shape[1:], pixel_um=(0.4, 0.5))
+    assert sidecar["parameters"]["z_step_from"] == "layer scale"  # the dock's words
+
+
+def test_peak_dock_figure_follows_the_depth_layer(make_napari_viewer, qtbot, tmp_path):
+    """The figure uses the dock's depth colours and blanks what the depth layer blanks."""
+    from matplotlib import colormaps
+
+    from viewer_plugin.widgets.projection import PeakDepthWidget
+
+    viewer = make_napari_viewer(show=True)
+    data = _stack()
+    layer = _add_stack(viewer, data)
+    layer.contrast_limits = (150.0, 600.0)  # above the Poisson background of about 105
+    widget = PeakDepthWidget(viewer)
+    widget.depth_cmap.value = "magma"
+    widget.hide_background.value = True
+    _run(qtbot, widget)
+    depth_layer = viewer.layers["cells peak depth (\u00b5m)"]
+    assert depth_layer.colormap.name == "magma"
+    files = widget.export_figure(tmp_path / "depth.png")
+    record = json.loads(files.sidecar.read_text(encoding="utf-8"))
+    assert record["parameters"]["blank_at_or_below"] == 150.0
+    assert record["colour_bar"]["colour_map"] == "magma"
+    assert record["colour_bar"]["depth_range_um"] == pytest.approx([0.0, 22.0])
+    panel = widget_panel(widget)
+    blank = np.isnan(np.asarray(depth_layer.data))  # the layer's blanked pixels: black
+    assert np.all(panel.image[blank] == 0) and blank.any()
+    # the others: magma of depth / 22 µm (matplotlib reference)
+    expected = colormaps["magma"](np.asarray(depth_layer.data)[~blank] / 22.0)[:, :3]
+    np.testing.assert_allclose(panel.image[~blank], expected, atol=1e-6)
+
+
+def widget_panel(widget):
+    """The figure panel of the dock's last result, as its export draws it."""
+    from viewer_plugin.jobs import figure_panel
+
+    return figure_panel(widget.projected, widget._current_index(), **widget._figure_options())
+
+
+def test_occlusion_dock_figure_is_a_rendering(make_napari_viewer, qtbot, tmp_path):
+    """The occlusion dock's figure (coloured by depth) has the colour bar of depth and says it is
+    a rendering with the density used."""
+    from viewer_plugin.widgets.projection import OcclusionWidget
+
+    viewer = make_napari_viewer(show=True)
+    _add_stack(viewer)
+    widget = OcclusionWidget(viewer)
+    widget.colour.value = "CET-I1"
+    widget.side_views.value = True  # the figure shows the top view
+    _run(qtbot, widget)
+    files = widget.export_figure(tmp_path / "occ.svg", title="Occlusion")
+    record = json.loads(files.sidecar.read_text(encoding="utf-8"))
+    density = widget._options(widget.layer)["density"]
+    assert record["parameters"]["density_per_um"] == pytest.approx(density)
+    assert record["colour_bar"]["depth_range_um"] == pytest.approx([0.0, 22.0])
+    assert record["image_shape"] == [40, 48]
+    assert "not a measurement" in files.methods_text and "Max 1995" in files.methods_text
+    assert "A rendering for showing" in files.figure.read_text(encoding="utf-8")

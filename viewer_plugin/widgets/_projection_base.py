@@ -1,4 +1,4 @@
-"""The base of the three projection docks: Compute, and a turning movie of the stack.
+"""The base of the three projection docks: Compute, a figure for a paper, a turning movie.
 
 They only translate between layers and :func:`viewer_plugin.jobs.project_stack`
 (and :func:`viewer_plugin.jobs.save_movie` for the turning movies of the peak
@@ -30,21 +30,27 @@ __all__ = ["ProjectionDock"]
 class ProjectionDock(StackDock):
     """Base of the projection docks: a Compute button running the projection job.
 
-    Docks that set :attr:`movie_method` also get "Save turning movie…": the
-    stack seen from angles through 360 degrees, rendered with that method and
-    the dock's display settings, saved as MP4 or GIF in the background.
+    "Export figure…" saves the last full result as a figure for a paper
+    (:func:`~viewer_plugin.jobs.write_figure`, in the background). Docks that
+    set :attr:`movie_method` also get "Save turning movie…": the stack seen
+    from angles through 360 degrees, rendered with that method and the dock's
+    display settings, saved as MP4 or GIF in the background.
     """
 
     title = "Projection"
     #: Method of the turning movie ("peak", "occlusion"); None: no movie button.
     movie_method: str | None = None
+    #: The default name of a figure: "<source> <figure_name>.png".
+    figure_name = "projection"
 
     def __init__(self, napari_viewer: Any) -> None:
         self.projected: Any = None
         self.saved_movie: Any = None
         self.compute_button = PushButton(text="Compute")
+        self.export_button = PushButton(text="Export figure\u2026", enabled=False)
         super().__init__(napari_viewer)
         self.compute_button.changed.connect(self.compute)
+        self.export_button.changed.connect(self._ask_export)
         from ._warm import start_warm_up
 
         start_warm_up()
@@ -61,6 +67,9 @@ class ProjectionDock(StackDock):
         self.movie_button.changed.connect(self._ask_movie)
         self.extend([self.movie_frames, self.movie_turn])
         self.action_buttons.append(self.movie_button)
+
+    def _add_bottom(self) -> None:
+        self.extend([*self.action_buttons, self.cancel_button, self.export_button, self.status])
 
     def _projection_options(self, layer: Any) -> Any:
         """The job's options from the dock's widgets (GUI thread)."""
@@ -109,6 +118,7 @@ class ProjectionDock(StackDock):
         def show(projected: Any) -> None:
             self.projected = projected
             self._show(layer, projected)
+            self.export_button.enabled = True
 
         return self.run_job(job, show, start_thread=start_thread)
 
@@ -208,3 +218,103 @@ class ProjectionDock(StackDock):
         self.status.value = (f"Saved {saved.path} ({saved.frames} frames, "
                              f"{width} \u00d7 {height} px)"
                              + "".join(f"; {note}" for note in saved.movie.notes))
+
+    # ----------------------------------------------------------- figure
+    def _figure_options(self) -> dict[str, Any]:
+        """Options of :func:`~viewer_plugin.jobs.write_figure` that follow the dock's display."""
+        return {}
+
+    def _ask_export(self, *_: Any) -> None:
+        import re
+
+        from qtpy.QtWidgets import QFileDialog
+
+        from ..jobs.figure import FIGURE_SUFFIXES
+
+        if self.projected is None:
+            return
+        base = self.projected.provenance.get("source_name", "projection")
+        path, chosen = QFileDialog.getSaveFileName(
+            self.native, f"Export figure: {self.title.lower()}", f"{base} {self.figure_name}.png",
+            "PNG (*.png);;TIFF (*.tif *.tiff);;PDF (*.pdf);;SVG (*.svg)")
+        named = bool(path) and Path(path).suffix.lower() in FIGURE_SUFFIXES
+        if path and not named:
+            suffix = re.search(r"\*(\.\w+)", chosen or "")  # the chosen filter's first suffix
+            path += suffix.group(1) if suffix else ".png"
+        if path:
+            # the dialog asked whether to replace the file it named (not one we added a suffix to)
+            self.export_figure(path, overwrite=named and Path(path).exists(), background=True)
+
+    def _current_index(self) -> tuple[int, ...]:
+        """The index of the plane shown now, for results with time or channel axes."""
+        from ..jobs import figure_planes
+
+        sizes = figure_planes(self.projected)
+        if not sizes:
+            return ()
+        geometry = self.projected.geometry  # the result layers keep depth as one slice
+        point = np.asarray(self.viewer.dims.point[-(len(geometry.axes) + 1):], dtype=float)
+        point = np.delete(point, int(self.projected.provenance["depth_axis"]))
+        return tuple(int(np.clip(round((point[j] - geometry.translate[j]) / geometry.scale[j]),
+                                 0, size - 1)) for j, size in enumerate(sizes))
+
+    def _current_plane(self, result: Any = None) -> Any:
+        """The 2-D plane of the last result shown in the viewer now (what a figure draws)."""
+        from ..jobs import figure_plane
+
+        return figure_plane(self.projected, self._current_index())
+
+    def export_figure(self, path: str | Path, *, overwrite: bool = False, title: str | None = None,
+                      background: bool = False) -> Any:
+        """Save the last full result as a figure with its key, scale bar and sidecars.
+
+        Returns the written files, or None after an error (shown as a
+        notification). With *background* the figure is drawn and written in a
+        worker thread and the napari worker is returned instead; the button
+        stays disabled until it is done.
+        """
+        from napari.utils.notifications import show_error
+
+        from ..jobs import write_figure
+
+        if self.projected is None:
+            show_error(f"{self.title}: compute the full result before exporting a figure")
+            return None
+        projected = dataclasses.replace(self.projected, provenance=self.result_info)
+        kwargs = {"index": self._current_index(), "title": title, "overwrite": overwrite,
+                  **self._figure_options()}
+        if background:
+            from napari.qt.threading import create_worker
+
+            # errors go to _export_failed; without _ignore_errors napari re-raises them
+            worker = create_worker(write_figure, projected, path, **kwargs,
+                                   _start_thread=False, _ignore_errors=True)
+            worker.returned.connect(self._exported)
+            worker.errored.connect(self._export_failed)
+            worker.finished.connect(lambda: setattr(self.export_button, "enabled",
+                                                    self.projected is not None))
+            self.export_button.enabled = False
+            self.status.value = f"Exporting {Path(path).name}\u2026"
+            worker.start()
+            return worker
+        try:
+            files = write_figure(projected, path, **kwargs)
+        except (ValueError, OSError) as exc:
+            self._export_failed(exc)
+            return None
+        self._exported(files)
+        return files
+
+    def _exported(self, files: Any) -> None:
+        from napari.utils.notifications import show_info
+
+        show_info(f"{self.title}: saved {files.figure.name} with {files.sidecar.name} and "
+                  f"{files.methods.name}")
+        self.status.value = f"Exported {files.figure}"
+
+    def _export_failed(self, exc: BaseException) -> None:
+        from napari.utils.notifications import show_error
+
+        text = str(exc) if isinstance(exc, (ValueError, OSError)) else f"{type(exc).__name__}: {exc}"
+        show_error(f"{self.title}: {text}")
+        self.status.value = f"Export failed: {text}"

@@ -3,11 +3,10 @@
 from __future__ import annotations
 
 import dataclasses
-from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
-from magicgui.widgets import CheckBox, ComboBox, FloatSlider, FloatSpinBox, Label, PushButton
+from magicgui.widgets import CheckBox, ComboBox, FloatSlider, FloatSpinBox, Label
 
 from ..jobs.choices import (
     CMAP_NOTE,
@@ -53,6 +52,7 @@ class DepthColourWidget(ProjectionDock):
 
     title = "Depth colour projection"
     tab_title = "Depth colour"
+    figure_name = "depth colour"
 
     def __init__(self, napari_viewer: "napari.Viewer") -> None:
         from qtpy.QtCore import QTimer
@@ -90,7 +90,6 @@ class DepthColourWidget(ProjectionDock):
         self.legend_label = Label(value="")
         self.saturation = Label(value="")
         self.saturation.native.setStyleSheet("color: #f0a040")  # a warning, when there is one
-        self.export_button = PushButton(text="Export figure\u2026", enabled=False)
         self.caveat = Label(value=PROJECTION_CAVEAT)
         for label in (self.cmap_hint, self.clim_label, self.method_hint, self.legend_label,
                       self.saturation, self.caveat):
@@ -103,11 +102,7 @@ class DepthColourWidget(ProjectionDock):
                        self.gamma, self.live):
             widget.changed.connect(self._on_parameter_changed)
         self.whole_depth.changed.connect(self._on_whole_depth)
-        self.export_button.changed.connect(self._ask_export)
         super()._add_options()
-
-    def _add_bottom(self) -> None:
-        self.extend([*self.action_buttons, self.cancel_button, self.export_button, self.status])
 
     def _layer_changed_hook(self, layer: Any) -> None:
         if layer is None:
@@ -163,7 +158,6 @@ class DepthColourWidget(ProjectionDock):
             depth_axis=info["depth_axis"], name=f"{layer.name} depth colour", rgb=True,
             metadata={"stackdepth": info})
         self._draw_legend(projected.result)
-        self.export_button.enabled = True
         d0, d1 = projected.result.depth_range
         self.status.value = f"Added '{self.result_layer.name}' (depth {d0:g}\u2013{d1:g} \u00b5m)"
 
@@ -259,90 +253,3 @@ class DepthColourWidget(ProjectionDock):
         if self.preview_layer is not None and self.preview_layer in self.viewer.layers:
             self.viewer.layers.remove(self.preview_layer)
         self.preview_layer = None
-
-    # ----------------------------------------------------------- export
-    def _ask_export(self, *_: Any) -> None:
-        from qtpy.QtWidgets import QFileDialog
-
-        if self.projected is None:
-            return
-        base = self.projected.provenance.get("source_name", "projection")
-        path, chosen = QFileDialog.getSaveFileName(
-            self.native, "Export depth-colour figure", f"{base} depth colour.png",
-            "PNG (*.png);;TIFF (*.tif *.tiff);;PDF (*.pdf)")
-        if path and Path(path).suffix.lower() not in (".png", ".tif", ".tiff", ".pdf"):
-            path += {"T": ".tif", "P": ".pdf"}.get(chosen[:1], ".png")
-        if path:
-            # the dialog already asked whether to replace an existing figure
-            self.export_figure(path, overwrite=Path(path).exists(), background=True)
-
-    def _current_index(self) -> tuple[int, ...]:
-        """The index of the plane shown now, for results with time or channel axes."""
-        rgb = np.asarray(self.projected.result.rgb)
-        if rgb.ndim <= 3 or self.result_layer is None:
-            return ()
-        layer = self.result_layer
-        position = np.asarray(layer.world_to_data(self.viewer.dims.point[-layer.ndim:]))
-        position = np.delete(position, int(self.projected.provenance["depth_axis"]))
-        return tuple(int(np.clip(round(float(position[j])), 0, rgb.shape[j] - 1))
-                     for j in range(rgb.ndim - 3))
-
-    def _current_plane(self, result: Any = None) -> Any:
-        """The 2-D plane of the last result shown in the viewer now (what a figure draws)."""
-        from ..jobs import figure_plane
-
-        return figure_plane(self.projected, self._current_index())
-
-    def export_figure(self, path: str | Path, *, overwrite: bool = False, title: str | None = None,
-                      background: bool = False) -> Any:
-        """Save the last full result as a figure with its key, scale bar and sidecars.
-
-        Returns the written files, or None after an error (shown as a
-        notification). With *background* the figure is drawn and written in a
-        worker thread and the napari worker is returned instead; the button
-        stays disabled until it is done.
-        """
-        from napari.utils.notifications import show_error
-
-        from ..jobs import write_figure
-
-        if self.projected is None:
-            show_error(f"{self.title}: compute the full result before exporting a figure")
-            return None
-        projected = dataclasses.replace(self.projected, provenance=self.result_info)
-        kwargs = {"index": self._current_index(), "title": title, "overwrite": overwrite}
-        if background:
-            from napari.qt.threading import create_worker
-
-            # errors go to _export_failed; without _ignore_errors napari re-raises them
-            worker = create_worker(write_figure, projected, path, **kwargs,
-                                   _start_thread=False, _ignore_errors=True)
-            worker.returned.connect(self._exported)
-            worker.errored.connect(self._export_failed)
-            worker.finished.connect(lambda: setattr(self.export_button, "enabled",
-                                                    self.projected is not None))
-            self.export_button.enabled = False
-            self.status.value = f"Exporting {Path(path).name}\u2026"
-            worker.start()
-            return worker
-        try:
-            files = write_figure(projected, path, **kwargs)
-        except (ValueError, OSError) as exc:
-            self._export_failed(exc)
-            return None
-        self._exported(files)
-        return files
-
-    def _exported(self, files: Any) -> None:
-        from napari.utils.notifications import show_info
-
-        show_info(f"{self.title}: saved {files.figure.name} with {files.sidecar.name} and "
-                  f"{files.methods.name}")
-        self.status.value = f"Exported {files.figure}"
-
-    def _export_failed(self, exc: BaseException) -> None:
-        from napari.utils.notifications import show_error
-
-        text = str(exc) if isinstance(exc, (ValueError, OSError)) else f"{type(exc).__name__}: {exc}"
-        show_error(f"{self.title}: {text}")
-        self.status.value = f"Export failed: {text}"

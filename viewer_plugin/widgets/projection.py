@@ -32,11 +32,16 @@ class PeakDepthWidget(ProjectionDock):
     Adds two layers: ``"<source> peak"`` (the input dtype) and
     ``"<source> peak depth (µm)"`` (float32, µm below the first slice, with
     napari's colour bar), so hovering a pixel reads its depth in µm.
+    "Export figure…" draws the depth map as that layer shows it, with its
+    colour bar in µm.
     """
 
     title = "Peak depth map"
     tab_title = "Peak depth"
     movie_method = "peak"
+    figure_name = "peak depth"
+    #: The figure blanks pixels whose peak is at or below this (as the depth layer); None: none.
+    blank_at_or_below: float | None = None
 
     def _add_options(self) -> None:
         self.depth_cmap = ComboBox(label="Depth map colours", choices=list(DEPTH_MAP_CMAPS),
@@ -55,7 +60,10 @@ class PeakDepthWidget(ProjectionDock):
     def _projection_options(self, layer: Any) -> Any:
         from ..jobs import ProjectionOptions
 
-        return ProjectionOptions(method="max")
+        return ProjectionOptions(method="max", cmap=self.depth_cmap.value)
+
+    def _figure_options(self) -> dict[str, Any]:
+        return {"blank_at_or_below": self.blank_at_or_below}
 
     def _movie_settings(self, layer: Any) -> dict[str, Any]:
         return {"clim": tuple(float(v) for v in layer.contrast_limits)}
@@ -65,6 +73,7 @@ class PeakDepthWidget(ProjectionDock):
         geometry = projected.geometry
         depth_um = np.asarray(result.depth_um)
         low, high = (float(v) for v in layer.contrast_limits)
+        self.blank_at_or_below = low if self.hide_background.value else None
         if self.hide_background.value:
             depth_um = np.where(np.asarray(result.peak) <= low, np.float32(np.nan), depth_um)
         z_step = projected.provenance["z_step_um"]
@@ -75,7 +84,8 @@ class PeakDepthWidget(ProjectionDock):
             contrast_limits=(low, high) if high > low else None)
         self.depth_layer = self.add_result(
             depth_um, geometry, source=layer, depth_axis=axis,
-            name=f"{layer.name} peak depth (\u00b5m)", colormap=self.depth_cmap.value,
+            name=f"{layer.name} peak depth (\u00b5m)",
+            colormap=projected.provenance["depth_map_cmap"],
             contrast_limits=(0.0, deepest),
             metadata={"stackdepth": {**in_dock_words(projected.provenance), "quantity":
                                      "depth of the strongest voxel", "unit": "\u00b5m",
@@ -96,6 +106,7 @@ class OcclusionWidget(ProjectionDock):
     title = "Occlusion projection"
     tab_title = "Occlusion"
     movie_method = "occlusion"
+    figure_name = "occlusion"
 
     def _add_options(self) -> None:
         self.auto_density = CheckBox(text="Automatic density (from the stack's depth)", value=True)
