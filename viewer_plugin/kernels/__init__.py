@@ -1,7 +1,8 @@
 """Numerical kernels of stackdepth, one subpackage per feature.
 
 * :mod:`.projection` -- peak, depth-coded and occlusion projections, the
-  depth legend, turning views (the stack seen from angles about one axis);
+  depth legend, turning views (the stack seen from angles about one axis),
+  depth and lengths along a drawn path;
 * :mod:`.attenuation` -- depth attenuation estimate and correction;
 * :mod:`.bleaching` -- bleaching check, correction and two-pass separation;
 * :mod:`.primitives` -- what the features share, written once: background
@@ -35,9 +36,11 @@ from .primitives import Background, background_level, slice_background
 from .projection import (
     DepthCodedProjection,
     DepthLegend,
+    PathProfile,
     PeakProjection,
     TurnVolume,
     Views,
+    depth_along_path,
     depth_coded_projection,
     depth_colours,
     depth_legend,
@@ -60,6 +63,7 @@ __all__ = [
     "DepthCodedProjection",
     "DepthLegend",
     "ParameterError",
+    "PathProfile",
     "PeakProjection",
     "TurnVolume",
     "TwoPassResult",
@@ -69,6 +73,7 @@ __all__ = [
     "brightest_point",
     "correct_attenuation",
     "correct_bleaching",
+    "depth_along_path",
     "depth_coded_projection",
     "depth_colours",
     "depth_legend",

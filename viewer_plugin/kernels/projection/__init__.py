@@ -10,6 +10,8 @@
   depth, or depth x brightness with ``brightness_steps``);
 * :func:`depth_colours`, :func:`display_limits` -- the per-slice colours and
   default display limits the projections use;
+* :func:`depth_along_path` -- depth and peak sampled along a path drawn on a
+  peak projection, with the path's planar and 3-D lengths (:class:`PathProfile`);
 * :func:`turn_volume`, :func:`turned_view`, :func:`turning_views`,
   :func:`series_views` -- views from angles about one axis (the stack
   resampled to cubic voxels) and top views of a series, rendered by the
@@ -43,6 +45,7 @@ from .depth_colour import METHODS, RECOLOURABLE, DepthCodedProjection, depth_cod
 from .legend import DepthLegend, depth_legend
 from .limits import CLIM_PERCENTILES, display_limits
 from .occlusion import DEFAULT_OPTICAL_DEPTH, VIEWS, default_density, occlusion_projection
+from .path import PathProfile, depth_along_path
 from .peak import PeakProjection, peak_projection
 from .reduction import combine_peak
 from .turn import (
@@ -70,10 +73,12 @@ __all__ = [
     "VIEWS",
     "DepthCodedProjection",
     "DepthLegend",
+    "PathProfile",
     "PeakProjection",
     "TurnVolume",
     "Views",
     "default_density",
+    "depth_along_path",
     "depth_coded_projection",
     "depth_colours",
     "depth_legend",
