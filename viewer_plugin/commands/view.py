@@ -87,6 +87,6 @@ def open_in_viewer(viewer: Any, layers: list[tuple[Any, dict[str, Any], str]]) -
         docks[0].raise_()
         # the image keeps most of the window: the docks take a fixed, readable width
         main_window.resizeDocks([docks[0]], [DOCK_WIDTH], Qt.Orientation.Horizontal)
-    if layers and hasattr(widgets[0], "update_preview"):
-        widgets[0].update_preview()  # depth at a glance: the downsampled depth colour preview
+    if layers and hasattr(widgets[0], "update_live"):
+        widgets[0].update_live()  # depth at a glance: full resolution when the stack allows
     return widgets

@@ -44,7 +44,7 @@ from .movie import (
     save_movie,
     write_movie,
 )
-from .projection import Projected, ProjectionOptions, SideView, project_stack
+from .projection import Projected, ProjectionOptions, SideView, project_stack, recolour_projected
 from .stack import Corrected, Geometry, Selection, geometry_of, select
 
 __all__ = [
@@ -75,6 +75,7 @@ __all__ = [
     "measure_attenuation",
     "movie_path",
     "project_stack",
+    "recolour_projected",
     "save_movie",
     "select",
     "separate_passes",

@@ -14,6 +14,7 @@ from ..kernels.bleaching import RESCALE
 from ..kernels.bleaching.text import DEPTH_CAVEAT, TWO_PASS_CAVEAT, VERDICT_WORDS, VERDICTS
 from ..kernels.projection import DEFAULT_CMAP, MAX_SIDE, TURN_AXES, TURN_METHODS, VIEWS
 from ..kernels.projection import METHODS as DEPTH_CODED
+from ..kernels.projection import RECOLOURABLE
 
 __all__ = [
     "ATTENUATION_CAVEAT",
@@ -33,10 +34,12 @@ __all__ = [
     "DEFAULT_MAX_GAIN",
     "DEFAULT_METHOD",
     "DEFAULT_MOVIE_METHOD",
+    "DEFAULT_SLAB_UM",
     "DEFAULT_TOLERANCE",
     "DEPTH_CAVEAT",
     "DEPTH_CODED",
     "EQUALISE_NOTE",
+    "LIVE_NOTE",
     "METHOD_LABELS",
     "METHOD_WORDS",
     "MAX_SIDE",
@@ -48,9 +51,11 @@ __all__ = [
     "OCCLUSION_NOTE",
     "PROJECTION_CAVEAT",
     "PROJECTION_METHODS",
+    "RECOLOURABLE",
     "RESCALE",
     "RESCALE_LABELS",
     "SATURATION_LIMIT",
+    "SLAB_NOTE",
     "TOLERANCE_NOTE",
     "TURN_AXES",
     "TURN_LABELS",
@@ -155,6 +160,14 @@ WEIGHTED_NOTE = ("weighted: depth is the mean depth of the signal above the back
                  "+ 3 SD, estimated from the stack; the contrast limits set only the brightness.")
 PROJECTION_CAVEAT = ("Colour = depth below the first slice; brightness = display contrast, "
                      "relative and not calibrated.")
+LIVE_NOTE = ("Follow every change without Compute: at full resolution when the stack takes well "
+             "under a second (a new colour map, depth range, contrast or gamma only recolours), "
+             "else a downsampled preview until Compute.")
+SLAB_NOTE = ("Projects only the slices within half the thickness of the viewer's current slice; "
+             "moving the z slider moves the slab. Colours keep the whole stack's depth range, "
+             "so a colour means the same depth everywhere.")
+#: Thickness of a new slab, in µm.
+DEFAULT_SLAB_UM = 10.0
 OCCLUSION_NOTE = ("A rendering for looking, not for measuring: its brightness is not an "
                   "intensity.")
 

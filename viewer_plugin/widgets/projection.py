@@ -37,6 +37,12 @@ class PeakDepthWidget(ProjectionDock):
     title = "Peak depth map"
     tab_title = "Peak depth"
     movie_method = "peak"
+    slab_capable = True
+
+    def __init__(self, napari_viewer: Any) -> None:
+        self.max_layer: Any = None
+        self.depth_layer: Any = None
+        super().__init__(napari_viewer)
 
     def _add_options(self) -> None:
         self.depth_cmap = ComboBox(label="Depth map colours", choices=list(DEPTH_MAP_CMAPS),
@@ -50,6 +56,8 @@ class PeakDepthWidget(ProjectionDock):
         self.note = Label(value="Depth is measured from the first slice (0 \u00b5m); "
                                 "ties go to the shallowest slice.")
         self.extend([self.depth_cmap, self.hide_background, self.note])
+        self.depth_cmap.changed.connect(self._on_parameter_changed)
+        self.hide_background.changed.connect(self._on_parameter_changed)
         super()._add_options()
 
     def _projection_options(self, layer: Any) -> Any:
@@ -61,6 +69,8 @@ class PeakDepthWidget(ProjectionDock):
         return {"clim": tuple(float(v) for v in layer.contrast_limits)}
 
     def _show(self, layer: Any, projected: Any) -> None:
+        from ._depth_layer import DepthLookup
+
         result, axis = projected.result, projected.provenance["depth_axis"]
         geometry = projected.geometry
         depth_um = np.asarray(result.depth_um)
@@ -69,20 +79,40 @@ class PeakDepthWidget(ProjectionDock):
             depth_um = np.where(np.asarray(result.peak) <= low, np.float32(np.nan), depth_um)
         z_step = projected.provenance["z_step_um"]
         deepest = max(z_step * (int(layer.data.shape[axis]) - 1), z_step)
+        lookup = DepthLookup(depth_um, np.asarray(result.peak), z_step / 2)
         self.max_layer = self.add_result(
             result.peak, geometry, source=layer, depth_axis=axis, name=f"{layer.name} peak",
             colormap=getattr(layer.colormap, "name", "gray"),
-            contrast_limits=(low, high) if high > low else None)
+            contrast_limits=(low, high) if high > low else None, replace=self.max_layer,
+            lookup=lookup)
         self.depth_layer = self.add_result(
             depth_um, geometry, source=layer, depth_axis=axis,
             name=f"{layer.name} peak depth (\u00b5m)", colormap=self.depth_cmap.value,
-            contrast_limits=(0.0, deepest),
+            contrast_limits=(0.0, deepest), replace=self.depth_layer, lookup=lookup,
             metadata={"stackdepth": {**in_dock_words(projected.provenance), "quantity":
                                      "depth of the strongest voxel", "unit": "\u00b5m",
                                      "origin": "first slice = 0 \u00b5m"}})
         self.depth_layer.colorbar.visible = True
-        self.status.value = (f"Added '{self.max_layer.name}' and '{self.depth_layer.name}' "
-                             f"(0\u2013{deepest:g} \u00b5m)")
+        slab = projected.provenance.get("slab")
+        where = "" if slab is None else (f"; slab {slab['depths_um'][0]:g}\u2013"
+                                         f"{slab['depths_um'][1]:g} \u00b5m")
+        self.status.value = (f"'{self.max_layer.name}' and '{self.depth_layer.name}' "
+                             f"(0\u2013{deepest:g} \u00b5m{where})")
+
+    def _restyled(self) -> bool:
+        """Colours of the depth map and blanked background need no new projection."""
+        layer = self.layer
+        if layer is None or self.axis_combo.value is None or self.depth_layer is None:
+            return False
+        try:
+            options = self.job_options(layer)
+        except ValueError:
+            return False
+        if self._stack_key(layer, options, int(self.axis_combo.value)) != self._shown_key \
+                or self.depth_layer not in self.viewer.layers:
+            return False
+        self._show(layer, self.projected)
+        return True
 
 
 class OcclusionWidget(ProjectionDock):
