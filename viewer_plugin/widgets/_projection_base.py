@@ -34,8 +34,8 @@ __all__ = ["LIVE_SECONDS", "ProjectionDock", "START_RATE", "live_seconds", "prev
 LIVE_SECONDS = 0.5
 #: Projection speed (bytes of stack read per second) assumed before the dock has
 #: timed a projection of its own; each full projection then replaces the figure for
-#: its kind of data. Cautious starts: machine A (2 cores) projects 3-15 GB/s of
-#: in-memory uint16 (docs/performance.md); lazily read data is bounded by the disk.
+#: its kind of data. Cautious starts: machine A (2 cores) projects 1.3-7.5 GB/s of
+#: in-memory uint16 (docs/projections.md); lazily read data is bounded by the disk.
 START_RATE = {"memory": 1.0e9, "lazy": 1.0e8}
 #: Smallest projection (bytes read) whose time updates the dock's speed figure.
 LEARN_BYTES = 32 * 2**20
