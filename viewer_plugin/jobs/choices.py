@@ -49,6 +49,8 @@ __all__ = [
     "MOVIE_OVER",
     "MOVIE_SUFFIXES",
     "OCCLUSION_NOTE",
+    "PATH_CAVEAT",
+    "PATH_NOTE",
     "PROJECTION_CAVEAT",
     "PROJECTION_METHODS",
     "RECOLOURABLE",
@@ -163,6 +165,11 @@ PROJECTION_CAVEAT = ("Colour = depth below the first slice; brightness = display
 LIVE_NOTE = ("Follow every change without Compute: at full resolution when the stack takes well "
              "under a second (a new colour map, depth range, contrast or gamma only recolours), "
              "else a downsampled preview until Compute.")
+PATH_NOTE = ("Depth along a path: draw a path along a fibre over the peak depth map (Draw a "
+             "path\u2026, or pick a Shapes layer); its depth and peak are plotted against the "
+             "distance along it.")
+PATH_CAVEAT = ("Depths are those of the strongest voxel near the path: where the path leaves the "
+               "fibre, crosses another or runs over background they mean nothing.")
 SLAB_NOTE = ("Projects only the slices within half the thickness of the viewer's current slice; "
              "moving the z slider moves the slab. Colours keep the whole stack's depth range, "
              "so a colour means the same depth everywhere.")
