@@ -136,6 +136,25 @@ class StackDock(Container):
         connect_layer_events(self.viewer, self._refresh_layers)
         self.native.destroyed.connect(self._disconnect_viewer)
         self._on_layer_changed(self.layer_combo.value)
+        self.fit_width()
+
+    def fit_width(self) -> None:
+        """Let the dock narrow: lists elide long entries, notes wrap.
+
+        Without this a choice such as "CET-I1 (cyan–green–orange, constant
+        lightness)" or one long note sets the dock's minimum width, and the
+        image gets what is left of the window.
+        """
+        from qtpy.QtWidgets import QComboBox
+
+        for widget in self:
+            native = widget.native
+            if isinstance(native, QComboBox):
+                native.setSizeAdjustPolicy(
+                    QComboBox.SizeAdjustPolicy.AdjustToMinimumContentsLengthWithIcon)
+                native.setMinimumContentsLength(16)
+            elif isinstance(widget, Label):
+                native.setWordWrap(True)
 
     # ----------------------------------------------------------- for subclasses
     def _add_options(self) -> None:
