@@ -84,12 +84,13 @@ class ProjectionDock(StackDock):
         self.preview_layer: Any = None
         self._live_pending = False
         self._shown_key: Any = None
+        self._generation = self._shown_generation = 0
         self.rates = dict(START_RATE)
         self._timed: dict[str, int] = {}
         self._live_timer = QTimer()
         self._live_timer.setSingleShot(True)
         self._live_timer.setInterval(LIVE_DELAY_MS)
-        self._live_timer.timeout.connect(self.update_live)
+        self._live_timer.timeout.connect(self._live_tick)
         self.compute_button = PushButton(text="Compute")
         super().__init__(napari_viewer)
         self.compute_button.changed.connect(self.compute)
@@ -147,6 +148,8 @@ class ProjectionDock(StackDock):
         if inputs is None:
             return None
         layer, options, axis = inputs
+        self._live_timer.stop()
+        generation = self._next_generation()
         selection = Selection(layer_stack(layer))
         key = self._stack_key(layer, options, axis)
         nbytes, kind = self._bytes_to_read(layer, axis, options)
@@ -159,7 +162,7 @@ class ProjectionDock(StackDock):
         def show(out: Any) -> None:
             projected, seconds = out
             self._learn_rate(kind, nbytes, seconds)
-            self._show_full(layer, key, projected)
+            self._show_full(layer, key, projected, generation)
 
         return self.run_job(job, show, start_thread=start_thread)
 
@@ -248,6 +251,10 @@ class ProjectionDock(StackDock):
         if self.layer is not None and self.live_wanted():
             self._live_timer.start()
 
+    def _live_tick(self) -> None:
+        if self.live_wanted():  # the option may have been switched off during the pause
+            self.update_live()
+
     def update_live(self, *, start_thread: bool = True, downsample: bool | None = None) -> Any:
         """Update the result now, in a worker; returns it (None when nothing to do).
 
@@ -291,6 +298,7 @@ class ProjectionDock(StackDock):
             stack = dataclasses.replace(stack, data=data[index], scale=tuple(
                 s * step if i in lateral else s for i, s in enumerate(stack.scale)))
         key = self._stack_key(layer, options, axis)
+        generation = self._next_generation()
 
         def job() -> Any:
             start = time.perf_counter()
@@ -301,8 +309,8 @@ class ProjectionDock(StackDock):
             projected, took = out
             if step == 1:
                 self._learn_rate(kind, nbytes, took)
-                self._show_full(layer, key, projected)
-            else:
+                self._show_full(layer, key, projected, generation)
+            elif self._current(generation):
                 self._show_preview(layer, step, seconds, projected)
 
         worker = create_worker(job, _start_thread=False, _ignore_errors=True)
@@ -320,8 +328,19 @@ class ProjectionDock(StackDock):
             self._live_pending = False
             self._live_timer.start()
 
-    def _show_full(self, layer: Any, key: tuple, projected: Any) -> None:
-        """Show a full-resolution result (from Compute or a live update)."""
+    def _next_generation(self) -> int:
+        self._generation += 1
+        return self._generation
+
+    def _current(self, generation: int) -> bool:
+        """Whether a result asked for as *generation* may be shown: nothing newer was shown since."""
+        return generation > self._shown_generation
+
+    def _show_full(self, layer: Any, key: tuple, projected: Any, generation: int) -> None:
+        """Show a full-resolution result (from Compute or a live update), unless a newer one was."""
+        if not self._current(generation):
+            return
+        self._shown_generation = generation
         self._remove_preview()
         self.projected, self._shown_key = projected, key
         self._show(layer, projected)
