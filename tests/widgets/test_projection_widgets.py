@@ -79,7 +79,7 @@ def test_depth_colour_preview_is_downsampled(make_napari_viewer, qtbot):
     viewer = make_napari_viewer(show=True)
     layer = _add_stack(viewer)
     widget = DepthColourWidget(viewer)
-    worker = widget.update_preview(start_thread=False)
+    worker = widget.update_live(start_thread=False, downsample=True)  # as for a big stack
     with qtbot.waitSignal(worker.finished, timeout=WAIT_MS):
         worker.start()
     preview = widget.preview_layer
@@ -341,17 +341,21 @@ def test_kernel_error_becomes_notification(make_napari_viewer, qtbot, errors, mo
     assert widget.compute_button.enabled
 
 
-def test_parameter_change_starts_debounced_preview(make_napari_viewer, qtbot):
+def test_parameter_change_updates_one_full_result_live(make_napari_viewer, qtbot):
+    """A small stack: the full result arrives without Compute and follows the options."""
     from viewer_plugin.widgets.projection import DepthColourWidget
 
     viewer = make_napari_viewer(show=True)
     _add_stack(viewer)
     widget = DepthColourWidget(viewer)
-    widget.gamma.value = 0.8
-    widget.cmap.value = "magma"  # two changes inside the delay: one preview
-    qtbot.waitUntil(lambda: widget.preview_layer is not None, timeout=WAIT_MS)
-    qtbot.waitUntil(lambda: widget.preview_worker is None, timeout=WAIT_MS)
-    assert [layer.name for layer in viewer.layers].count("cells depth colour (preview)") == 1
+    widget.method.value = "weighted"
+    widget.gamma.value = 0.8  # changes inside the delay: one update
+    qtbot.waitUntil(lambda: widget.result_layer is not None and widget.live_worker is None,
+                    timeout=WAIT_MS)
+    names = [layer.name for layer in viewer.layers]
+    assert names.count("cells depth colour") == 1 and "cells depth colour (preview)" not in names
+    assert viewer.layers["cells depth colour"].data.shape == (40, 48, 3)  # full resolution
+    assert widget.result.method == "weighted" and widget.result.gamma == pytest.approx(0.8)
 
 
 def test_widgets_open_from_the_plugin_menu(make_napari_viewer):
@@ -374,7 +378,7 @@ def test_export_time_series_uses_current_time_point(make_napari_viewer, qtbot, t
     _run(qtbot, widget)
     assert viewer.layers["series depth colour"].data.shape == (2, 1, 40, 48, 3)
     viewer.dims.set_point(0, 30.0)  # the second time point
-    worker = widget.update_preview(start_thread=False)
+    worker = widget.update_live(start_thread=False, downsample=True)
     with qtbot.waitSignal(worker.finished, timeout=WAIT_MS):
         worker.start()
     assert widget.preview_layer.data.shape == (2, 1, 10, 12, 3)  # lined up like the full result

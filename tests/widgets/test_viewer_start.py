@@ -16,11 +16,12 @@ def test_demo_viewer_has_five_docked_widgets(make_napari_viewer, qtbot, tmp_path
     viewer = make_napari_viewer(show=True)
     widgets = open_in_viewer(viewer, sample_fibre_slab())
     assert len(widgets) == 5
-    # depth at a glance: the depth colour preview arrives without a click
-    qtbot.waitUntil(lambda: widgets[0].preview_worker is None and widgets[0].preview_layer is not None,
+    # depth at a glance: the full-resolution depth colour image arrives without a click
+    qtbot.waitUntil(lambda: widgets[0].live_worker is None and widgets[0].result_layer is not None,
                     timeout=120_000)
-    assert [layer.name for layer in viewer.layers] == ["fibre slab", "fibre slab depth colour (preview)"]
+    assert [layer.name for layer in viewer.layers] == ["fibre slab", "fibre slab depth colour"]
     layer = viewer.layers["fibre slab"]
+    assert viewer.layers["fibre slab depth colour"].data.shape == layer.data.shape[1:] + (3,)
     assert tuple(layer.scale) == pytest.approx((1.0, 0.3, 0.3))
     assert "truth" in layer.metadata
     docks = viewer.window.dock_widgets

@@ -51,17 +51,39 @@ def run(args: argparse.Namespace) -> int:
 
     viewer = napari.Viewer(title="stackdepth")
     viewer.window.resize(1600, 1000)
-    open_in_viewer(viewer, layers)
+    widgets = open_in_viewer(viewer, layers)
     if args.screenshot:
-        from qtpy.QtCore import QTimer
-
-        def shoot() -> None:
-            viewer.screenshot(args.screenshot, canvas_only=False)
-            viewer.close()
-
-        QTimer.singleShot(6000, shoot)  # after numba warm-up and the first preview
+        _shoot_when_ready(viewer, widgets[0], args.screenshot)
     napari.run()
     return 0
+
+
+_TIMERS: list[Any] = []
+
+
+def _shoot_when_ready(viewer: Any, first: Any, path: str, *, timeout_s: float = 120.0) -> None:
+    """Save a screenshot once the first dock's live result is shown (or after *timeout_s*), then quit."""
+    import time
+
+    from qtpy.QtCore import QTimer
+
+    start = time.monotonic()
+    timer = QTimer()
+    _TIMERS.append(timer)  # kept alive until the viewer closes
+
+    def poll() -> None:
+        ready = getattr(first, "live_worker", None) is None and (
+            getattr(first, "result_layer", None) is not None or not viewer.layers)
+        if ready or time.monotonic() - start > timeout_s:
+            timer.stop()
+            QTimer.singleShot(1000, shoot)  # let the canvas draw the new layer
+
+    def shoot() -> None:
+        viewer.screenshot(path, canvas_only=False)
+        viewer.close()
+
+    timer.timeout.connect(poll)
+    timer.start(200)
 
 
 def open_in_viewer(viewer: Any, layers: list[tuple[Any, dict[str, Any], str]]) -> list[Any]:
@@ -87,6 +109,9 @@ def open_in_viewer(viewer: Any, layers: list[tuple[Any, dict[str, Any], str]]) -
         docks[0].raise_()
         # the image keeps most of the window: the docks take a fixed, readable width
         main_window.resizeDocks([docks[0]], [DOCK_WIDTH], Qt.Orientation.Horizontal)
-    if layers and hasattr(widgets[0], "update_preview"):
-        widgets[0].update_preview()  # depth at a glance: the downsampled depth colour preview
+        from qtpy.QtCore import QTimer
+
+        QTimer.singleShot(200, viewer.reset_view)  # fit the image to the canvas the docks leave
+    if layers and hasattr(widgets[0], "update_live"):
+        widgets[0].update_live()  # depth at a glance: full resolution when the stack allows
     return widgets

@@ -8,7 +8,9 @@ arguments and widgets into these calls and show or write what comes back;
 the choice lists, defaults and caution texts they show are in
 :mod:`.choices`.
 
-* :func:`project_stack`, :func:`write_figure` -- projections and figures;
+* :func:`project_stack`, :func:`recolour_projected`, :func:`write_figure` -- projections
+  (whole stack or a slab), new colours without the stack, and figures;
+* :func:`path_profile` -- depth and peak along a path drawn over a projection;
 * :func:`save_movie` (:func:`make_movie` + :func:`write_movie`) -- a turning
   movie, or one top view per time point, as MP4 or GIF;
 * :func:`measure_attenuation`, :func:`correct_measured` -- depth attenuation;
@@ -44,7 +46,8 @@ from .movie import (
     save_movie,
     write_movie,
 )
-from .projection import Projected, ProjectionOptions, SideView, project_stack
+from .path import path_profile
+from .projection import Projected, ProjectionOptions, SideView, project_stack, recolour_projected
 from .stack import Corrected, Geometry, Selection, geometry_of, select
 
 __all__ = [
@@ -76,7 +79,9 @@ __all__ = [
     "make_movie",
     "measure_attenuation",
     "movie_path",
+    "path_profile",
     "project_stack",
+    "recolour_projected",
     "save_movie",
     "select",
     "separate_passes",

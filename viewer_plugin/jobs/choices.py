@@ -14,6 +14,7 @@ from ..kernels.bleaching import RESCALE
 from ..kernels.bleaching.text import DEPTH_CAVEAT, TWO_PASS_CAVEAT, VERDICT_WORDS, VERDICTS
 from ..kernels.projection import DEFAULT_CMAP, MAX_SIDE, TURN_AXES, TURN_METHODS, VIEWS
 from ..kernels.projection import METHODS as DEPTH_CODED
+from ..kernels.projection import RECOLOURABLE
 
 __all__ = [
     "ATTENUATION_CAVEAT",
@@ -33,10 +34,12 @@ __all__ = [
     "DEFAULT_MAX_GAIN",
     "DEFAULT_METHOD",
     "DEFAULT_MOVIE_METHOD",
+    "DEFAULT_SLAB_UM",
     "DEFAULT_TOLERANCE",
     "DEPTH_CAVEAT",
     "DEPTH_CODED",
     "EQUALISE_NOTE",
+    "LIVE_NOTE",
     "METHOD_LABELS",
     "METHOD_WORDS",
     "MAX_SIDE",
@@ -46,11 +49,15 @@ __all__ = [
     "MOVIE_OVER",
     "MOVIE_SUFFIXES",
     "OCCLUSION_NOTE",
+    "PATH_CAVEAT",
+    "PATH_NOTE",
     "PROJECTION_CAVEAT",
     "PROJECTION_METHODS",
+    "RECOLOURABLE",
     "RESCALE",
     "RESCALE_LABELS",
     "SATURATION_LIMIT",
+    "SLAB_NOTE",
     "TOLERANCE_NOTE",
     "TURN_AXES",
     "TURN_LABELS",
@@ -155,6 +162,19 @@ WEIGHTED_NOTE = ("weighted: depth is the mean depth of the signal above the back
                  "+ 3 SD, estimated from the stack; the contrast limits set only the brightness.")
 PROJECTION_CAVEAT = ("Colour = depth below the first slice; brightness = display contrast, "
                      "relative and not calibrated.")
+LIVE_NOTE = ("Follow every change without Compute: at full resolution when the stack takes well "
+             "under a second (a new colour map, depth range, contrast or gamma only recolours), "
+             "else a downsampled preview until Compute.")
+PATH_NOTE = ("Depth along a path: draw a path along a fibre over the peak depth map (Draw a "
+             "path\u2026, or pick a Shapes layer); its depth and peak are plotted against the "
+             "distance along it.")
+PATH_CAVEAT = ("Depths are those of the strongest voxel near the path: where the path leaves the "
+               "fibre, crosses another or runs over background they mean nothing.")
+SLAB_NOTE = ("Projects only the slices within half the thickness of the viewer's current slice; "
+             "moving the z slider moves the slab. Colours keep the whole stack's depth range, "
+             "so a colour means the same depth everywhere.")
+#: Thickness of a new slab, in µm.
+DEFAULT_SLAB_UM = 10.0
 OCCLUSION_NOTE = ("A rendering for looking, not for measuring: its brightness is not an "
                   "intensity.")
 

@@ -2,13 +2,14 @@
 
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
 
 from .._shared.progress import Progress, sub_progress
-from .._shared.validation import check_choice, check_interval
+from .._shared.validation import check_choice, check_interval, fail
 from .choices import (
     CMAP_KIND,
     DEFAULT_CMAP,
@@ -29,7 +30,7 @@ from .stack import (
     geometry_of,
 )
 
-__all__ = ["ProjectionOptions", "Projected", "SideView", "project_stack"]
+__all__ = ["ProjectionOptions", "Projected", "SideView", "project_stack", "recolour_projected"]
 
 
 @dataclass(frozen=True)
@@ -61,6 +62,13 @@ class ProjectionOptions:
         Occlusion: also render the views along the two lateral axes.
     z_step : float or None
         Slice spacing in µm; None takes it from the stack's scale.
+    slab_um : float or None
+        Project only a slab this thick (µm) centred on slice ``slab_centre``
+        ("max" and the depth-coded methods). Depths still count from the
+        stack's first slice and the colours span the whole stack's depth
+        (unless ``depth_range`` is given), so they mean the same for every slab.
+    slab_centre : int or None
+        Index of the slab's centre slice along the depth axis (with ``slab_um``).
     """
 
     method: str = "peak"
@@ -72,6 +80,8 @@ class ProjectionOptions:
     view: str = "top"
     side_views: bool = False
     z_step: float | None = None
+    slab_um: float | None = None
+    slab_centre: int | None = None
 
 
 @dataclass(frozen=True)
@@ -171,15 +181,26 @@ def project_stack(selection: Selection, options: ProjectionOptions, *,
     data = stack.data
     entries: dict[str, Any] = {
         "method": method, "z_step_um": z_step, "z_step_from": z_from, "depth_axis": axis,
-        "axes": stack.axes, "voxel_size_um": describe_voxel(stack, axis, z_step)}
+        "slices": int(stack.data.shape[axis]), "axes": stack.axes,
+        "voxel_size_um": describe_voxel(stack, axis, z_step)}
+    first, requested = 0, options.depth_range
+    if options.slab_um is not None:
+        data, first, entries["slab"] = _slab(data, axis, z_step, method, options)
+        options = dataclasses.replace(options, depth_range=kp.slab_depth_range(
+            requested, n=int(stack.data.shape[axis]), z_step=z_step, first_slice=first))
     sides: tuple[SideView, ...] = ()
     if method == "max":
         result = kp.peak_projection(data, axis=axis, z_step=z_step, progress=progress)
+        result = kp.offset_depths(result, first) if first else result
         entries.update(depth_map_cmap=options.cmap or DEPTH_MAP_CMAPS[0], depth_range_um=list(
-            check_interval(options.depth_range, name="depth_range")
-            or _whole_depth(int(data.shape[axis]), z_step)))
+            check_interval(requested, name="depth_range")
+            or _whole_depth(int(stack.data.shape[axis]), z_step)))
     elif method in DEPTH_CODED:
         result, used = _depth_coded(data, axis, z_step, options, progress)
+        if options.slab_um is not None:
+            result = kp.offset_depths(result, first) if first else result
+            used["depth_range_um"] = [float(v) for v in result.depth_range]
+            used["depth_range_requested_um"] = requested
         entries.update(used)
         warning = saturation_warning(result.saturated_fraction)
         notes = notes + ((warning,) if warning else ())
@@ -193,6 +214,23 @@ def project_stack(selection: Selection, options: ProjectionOptions, *,
                      sides, notes)
 
 
+def _slab(data: Any, axis: int, z_step: float, method: str,
+          options: ProjectionOptions) -> tuple[Any, int, dict[str, Any]]:
+    """The slab's slices of *data*, its first slice, and what the provenance records of it."""
+    from ..kernels import projection as kp
+
+    if method not in ("max", *DEPTH_CODED):
+        fail("slab", f"a method that projects a slab (max, {', '.join(DEPTH_CODED)})", method)
+    n = int(data.shape[axis])
+    centre = options.slab_centre if options.slab_centre is not None else n // 2
+    start, stop = kp.slab_bounds(n, centre=centre, thickness_um=options.slab_um, z_step=z_step)
+    index = (slice(None),) * axis + (slice(start, stop),)
+    record = {"thickness_um": float(options.slab_um), "centre_slice": int(centre),
+              "first_slice": start, "last_slice": stop - 1,
+              "depths_um": [start * z_step, (stop - 1) * z_step]}
+    return data[index], start, record
+
+
 def _depth_coded(data: Any, axis: int, z_step: float, options: ProjectionOptions,
                  progress: Progress) -> tuple[Any, dict[str, Any]]:
     """The depth-coded projection and what the provenance records of it."""
@@ -202,6 +240,11 @@ def _depth_coded(data: Any, axis: int, z_step: float, options: ProjectionOptions
     result = kp.depth_coded_projection(
         data, z_step=z_step, method=options.method, cmap=cmap, depth_range=options.depth_range,
         clim=options.clim, gamma=options.gamma, axis=axis, progress=progress)
+    return result, _coded_record(result, options, cmap)
+
+
+def _coded_record(result: Any, options: ProjectionOptions, cmap: Any) -> dict[str, Any]:
+    """What the provenance records of a depth-coded result made with *options*."""
     kind = CMAP_KIND.get(cmap, "other") if isinstance(cmap, str) else "other"
     used = {"cmap": cmap, "cmap_kind": kind, "depth_range_um": [float(v) for v in result.depth_range],
             "depth_range_requested_um": options.depth_range, "clim": options.clim,
@@ -209,7 +252,49 @@ def _depth_coded(data: Any, axis: int, z_step: float, options: ProjectionOptions
             "saturated_fraction": result.saturated_fraction}
     if result.weight_floor is not None:
         used["weight_floor"] = result.weight_floor
-    return result, used
+    return used
+
+
+def recolour_projected(projected: Projected, options: ProjectionOptions) -> Projected:
+    """A depth-coded result with new display options, without reading the stack again.
+
+    Equal to :func:`project_stack` with *options* on the same stack, when
+    *options* differ from the ones that made *projected* only in colour map,
+    depth range, display limits (given, not automatic) and gamma.
+
+    Parameters
+    ----------
+    projected : Projected
+        A depth-coded result of method "peak" or "weighted" (see
+        :data:`~viewer_plugin.kernels.projection.RECOLOURABLE`).
+    options : ProjectionOptions
+        The new options; ``depth_range`` counts from the stack's first slice
+        (None: the range the result was made with, for a slab the whole stack's).
+
+    Returns
+    -------
+    Projected
+        A new result and provenance; *projected* is not changed.
+
+    Raises
+    ------
+    ParameterError
+        For a result that cannot be recoloured, or bad options.
+    """
+    cmap = options.cmap or DEFAULT_CMAP
+    result = projected.result
+    depth_range = options.depth_range
+    if depth_range is None:  # the whole stack's, as project_stack takes it
+        n = int(projected.provenance["slices"])
+        depth_range = (0.0, (n - 1) * result.z_step if n > 1 else result.z_step)
+    recoloured = result.recolour(cmap=cmap, depth_range=depth_range, clim=options.clim,
+                                 gamma=options.gamma)
+    used = _coded_record(recoloured, options, cmap)
+    record = {**projected.provenance, **used}
+    warning = saturation_warning(recoloured.saturated_fraction)
+    notes = tuple(n for n in projected.notes if n != saturation_warning(result.saturated_fraction))
+    return dataclasses.replace(projected, result=recoloured, provenance=record,
+                               notes=notes + ((warning,) if warning else ()))
 
 
 def _occlusion(data: Any, axis: int, z_step: float, options: ProjectionOptions, stack: Any,

@@ -136,6 +136,25 @@ class StackDock(Container):
         connect_layer_events(self.viewer, self._refresh_layers)
         self.native.destroyed.connect(self._disconnect_viewer)
         self._on_layer_changed(self.layer_combo.value)
+        self.fit_width()
+
+    def fit_width(self) -> None:
+        """Let the dock narrow: lists elide long entries, notes wrap.
+
+        Without this a choice such as "CET-I1 (cyan–green–orange, constant
+        lightness)" or one long note sets the dock's minimum width, and the
+        image gets what is left of the window.
+        """
+        from qtpy.QtWidgets import QComboBox
+
+        for widget in self:
+            native = widget.native
+            if isinstance(native, QComboBox):
+                native.setSizeAdjustPolicy(
+                    QComboBox.SizeAdjustPolicy.AdjustToMinimumContentsLengthWithIcon)
+                native.setMinimumContentsLength(16)
+            elif isinstance(widget, Label):
+                native.setWordWrap(True)
 
     # ----------------------------------------------------------- for subclasses
     def _add_options(self) -> None:
@@ -314,31 +333,63 @@ class StackDock(Container):
 
     # ----------------------------------------------------------- results
     def add_result(self, data: Any, geometry: "Geometry", *, source: Any, name: str,
-                   depth_axis: int | None = None, **kwargs: Any) -> Any:
+                   depth_axis: int | None = None, replace: Any = None, lookup: Any = None,
+                   **kwargs: Any) -> Any:
         """Add *data* with *geometry* as a new image layer next to its *source* layer.
 
         For a projection (*depth_axis* given) of a layer with time or channel
         axes, the projected axis is kept as one slice spanning the stack's
         whole depth, so napari lines the result's time axis up with the
         source's, not with its z axis.
+
+        *replace*: an earlier result layer of this dock; while it is still in
+        the viewer, it gets the new data and geometry instead of a new layer
+        being added (live updates). *lookup*: a
+        :class:`~viewer_plugin.widgets._depth_layer.DepthLookup` (arrays shaped
+        like the image) whose depth and peak the status bar shows under the cursor.
         """
+        from ._depth_layer import DepthImage, DepthLookup
+
         rgb = kwargs.get("rgb", False)
-        axes = geometry.axes[:-1] if rgb and geometry.axes.endswith("S") else geometry.axes
-        n = len(axes)
-        layout: dict[str, Any] = {
-            "scale": list(geometry.scale[:n]), "translate": list(geometry.translate[:n]),
-            "axis_labels": [a.lower() for a in axes], "units": _units(geometry, n)}
-        if depth_axis is not None and source.ndim >= 4:
-            data = np.expand_dims(np.asarray(data), depth_axis)
-            depth = int(layer_data(source).shape[depth_axis])
-            step = float(source.scale[depth_axis])
-            layout["scale"].insert(depth_axis, depth * step)
-            layout["translate"].insert(depth_axis,
-                                       float(source.translate[depth_axis]) + (depth - 1) * step / 2)
-            layout["axis_labels"].insert(depth_axis, layer_letters(source)[depth_axis].lower())
-            layout["units"].insert(depth_axis, "micrometer")
+        data, layout = _placed(data, geometry, source, depth_axis, rgb)
+        if lookup is not None and depth_axis is not None and source.ndim >= 4:
+            lookup = DepthLookup(*(None if a is None else np.expand_dims(np.asarray(a), depth_axis)
+                                   for a in (lookup.depth_um, lookup.peak)), lookup.half_step_um)
+        if replace is not None and replace in self.viewer.layers and replace.rgb == rgb:
+            for key in ("metadata", "colormap", "contrast_limits"):
+                if key in kwargs:
+                    setattr(replace, key, kwargs[key])
+            replace.data = data
+            replace.scale, replace.translate = layout["scale"], layout["translate"]
+            if isinstance(replace, DepthImage):
+                replace.depth_lookup = lookup
+            return replace
         layout.update(kwargs)
-        return self.viewer.add_image(data, name=name, **layout)
+        if lookup is None:
+            return self.viewer.add_image(data, name=name, **layout)
+        layer = DepthImage(data, name=name, **layout)
+        layer.depth_lookup = lookup
+        return self.viewer.add_layer(layer)
+
+
+def _placed(data: Any, geometry: "Geometry", source: Any, depth_axis: int | None,
+            rgb: bool) -> tuple[Any, dict[str, Any]]:
+    """(data, layer keywords) of a result: scale, translate, axis labels, units."""
+    axes = geometry.axes[:-1] if rgb and geometry.axes.endswith("S") else geometry.axes
+    n = len(axes)
+    layout: dict[str, Any] = {
+        "scale": list(geometry.scale[:n]), "translate": list(geometry.translate[:n]),
+        "axis_labels": [a.lower() for a in axes], "units": _units(geometry, n)}
+    if depth_axis is not None and source.ndim >= 4:
+        data = np.expand_dims(np.asarray(data), depth_axis)
+        depth = int(layer_data(source).shape[depth_axis])
+        step = float(source.scale[depth_axis])
+        layout["scale"].insert(depth_axis, depth * step)
+        layout["translate"].insert(depth_axis,
+                                   float(source.translate[depth_axis]) + (depth - 1) * step / 2)
+        layout["axis_labels"].insert(depth_axis, layer_letters(source)[depth_axis].lower())
+        layout["units"].insert(depth_axis, "micrometer")
+    return data, layout
 
 
 def _units(geometry: "Geometry", n: int) -> list[str]:

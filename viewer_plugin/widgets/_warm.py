@@ -1,4 +1,4 @@
-"""Compile the projection kernels once per session, in a background thread."""
+"""Compile the projection kernels once per process, in a background thread."""
 
 from __future__ import annotations
 

@@ -2,13 +2,14 @@
 
 from __future__ import annotations
 
-import dataclasses
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
 from magicgui.widgets import CheckBox, ComboBox, FloatSlider, FloatSpinBox, Label
 
 from ..jobs.choices import (
+    LIVE_NOTE,
+    RECOLOURABLE,
     CMAP_NOTE,
     COLOUR_MAPS,
     DEFAULT_CMAP,
@@ -20,51 +21,34 @@ from ..jobs.choices import (
     labelled,
     saturation_warning,
 )
-from ._dock import in_dock_words, layer_data, layer_stack
+from ._dock import in_dock_words
 from ._projection_base import ProjectionDock
 
 if TYPE_CHECKING:  # pragma: no cover
     import napari
 
-#: Milliseconds without a parameter change before a preview starts.
-PREVIEW_DELAY_MS = 300
-#: Largest number of voxels of a preview (downsampled copy).
-PREVIEW_VOXELS = 8_000_000
-
-
-def preview_step(shape: tuple[int, ...], *, voxels: int = PREVIEW_VOXELS) -> int:
-    """Step in y and x for a preview: 4, or more so the copy stays below *voxels*."""
-    total = float(np.prod(shape, dtype=np.float64))
-    step = 4
-    while total / (step * step) > voxels:
-        step *= 2
-    return step
-
-
 class DepthColourWidget(ProjectionDock):
     """Colours every pixel by the depth (µm) of its signal, in one RGB image.
 
-    The full result is a new RGB layer ``"<source> depth colour"``; while
-    parameters move, a preview on every 4th pixel (or coarser for big stacks)
-    is shown as ``"<source> depth colour (preview)"``. The key (depth in µm x
-    brightness) is drawn in the dock; "Export figure…" saves a figure for a paper.
+    The result is the RGB layer ``"<source> depth colour"``. With "Live
+    update" on, it follows every change without Compute: a stack expected to
+    take at most :data:`~viewer_plugin.widgets._projection_base.LIVE_SECONDS`
+    is projected at full resolution, and a change of colour map, depth range,
+    contrast or gamma only recolours the kept result (no new pass over the
+    stack); a bigger stack gets a preview on every 4th pixel (or coarser),
+    ``"<source> depth colour (preview)"``, until Compute. The key (depth in µm
+    x brightness) is drawn in the dock; "Export figure…" saves a figure for a
+    paper; the status bar shows the depth and peak under the cursor.
     """
 
     title = "Depth colour projection"
     tab_title = "Depth colour"
     figure_name = "depth colour"
+    slab_capable = True
+    previews = True
 
     def __init__(self, napari_viewer: "napari.Viewer") -> None:
-        from qtpy.QtCore import QTimer
-
         self.result_layer: Any = None
-        self.preview_layer: Any = None
-        self.preview_worker: Any = None
-        self._preview_pending = False
-        self._timer = QTimer()
-        self._timer.setSingleShot(True)
-        self._timer.setInterval(PREVIEW_DELAY_MS)
-        self._timer.timeout.connect(self.update_preview)
         super().__init__(napari_viewer)
 
     # ----------------------------------------------------------- dock
@@ -84,7 +68,7 @@ class DepthColourWidget(ProjectionDock):
         self.clim_label = Label(value="")
         self.method_hint = Label(value="")
         self.gamma = FloatSlider(label="Gamma", value=1.0, min=0.2, max=3.0, step=0.05)
-        self.live = CheckBox(text="Live preview (downsampled)", value=True)
+        self.live = CheckBox(text="Live update", value=True, tooltip=LIVE_NOTE)
         self.legend = Label(value="")  # shows the 2-D key (depth x brightness) as a pixmap
         self.legend_image: np.ndarray | None = None
         self.legend_label = Label(value="")
@@ -96,19 +80,23 @@ class DepthColourWidget(ProjectionDock):
             label.native.setWordWrap(True)
         self.extend([self.method, self.cmap, self.cmap_hint, self.whole_depth, self.depth_from,
                      self.depth_to, self.auto_contrast, self.clim_label, self.method_hint,
-                     self.gamma, self.live, self.legend, self.legend_label, self.saturation,
-                     self.caveat])
+                     self.gamma, self.live])
         for widget in (self.method, self.cmap, self.depth_from, self.depth_to, self.auto_contrast,
-                       self.gamma, self.live):
+                       self.gamma, self.live):  # base: recolour, or update live
             widget.changed.connect(self._on_parameter_changed)
         self.whole_depth.changed.connect(self._on_whole_depth)
-        super()._add_options()
+        super()._add_options()  # the slab, then the key below it
+        self.extend([self.legend, self.legend_label, self.saturation, self.caveat])
 
     def _layer_changed_hook(self, layer: Any) -> None:
         if layer is None:
             return
         self._reset_depth_range()
         self._show_clim()
+        self.request_live()
+
+    def live_wanted(self) -> bool:
+        return bool(self.live.value) or super().live_wanted()
 
     def _reset_depth_range(self) -> None:
         layer, axis = self.layer, self.axis_combo.value
@@ -151,15 +139,44 @@ class DepthColourWidget(ProjectionDock):
                                  depth_range=depth_range, clim=clim, gamma=float(self.gamma.value))
 
     def _show(self, layer: Any, projected: Any) -> None:
-        self._remove_preview()
+        from ._depth_layer import DepthLookup
+
         info = in_dock_words(projected.provenance)
+        result = projected.result
+        lookup = DepthLookup(np.asarray(result.depth_um), result.peak,
+                             None if result.method == "weighted" else result.z_step / 2)
         self.result_layer = self.add_result(
             projected.rgb, projected.geometry.with_samples(), source=layer,
             depth_axis=info["depth_axis"], name=f"{layer.name} depth colour", rgb=True,
-            metadata={"stackdepth": info})
-        self._draw_legend(projected.result)
-        d0, d1 = projected.result.depth_range
-        self.status.value = f"Added '{self.result_layer.name}' (depth {d0:g}\u2013{d1:g} \u00b5m)"
+            metadata={"stackdepth": info}, replace=self.result_layer, lookup=lookup)
+        self._draw_legend(result)
+        self.export_button.enabled = True
+        d0, d1 = result.depth_range
+        slab = info.get("slab")
+        where = "" if slab is None else (f"; slab {slab['depths_um'][0]:g}\u2013"
+                                         f"{slab['depths_um'][1]:g} \u00b5m")
+        self.status.value = (f"'{self.result_layer.name}': full resolution, colours "
+                             f"{d0:g}\u2013{d1:g} \u00b5m{where}")
+
+    def _restyled(self) -> bool:
+        """Recolour the kept result when only colour map, depth range, contrast or gamma changed."""
+        from ..jobs import recolour_projected
+
+        layer = self.layer
+        if layer is None or self.axis_combo.value is None:
+            return False
+        try:
+            options = self.job_options(layer)
+        except ValueError as exc:
+            self.status.value = f"{exc}"
+            return True
+        if self._stack_key(layer, options, int(self.axis_combo.value)) != self._shown_key:
+            return False
+        if options.method not in RECOLOURABLE or (self.result_layer not in self.viewer.layers):
+            return False
+        self.projected = recolour_projected(self.projected, options)
+        self._show(layer, self.projected)
+        return True
 
     def _draw_legend(self, result: Any) -> None:
         """The 2-D key of *result* (as the exported figure draws it) and its saturation warning."""
@@ -184,72 +201,14 @@ class DepthColourWidget(ProjectionDock):
             return
         self._reset_depth_range()  # follows a new z-step
         self._show_clim()
-        if self.live.value and self.layer is not None:
-            self._timer.start()
+        super()._on_parameter_changed()
 
-    def update_preview(self, *, start_thread: bool = True) -> Any:
-        """Compute the downsampled preview now; returns its worker (or None)."""
-        from napari.qt.threading import create_worker
-
-        from ..jobs import Selection, project_stack
-
-        layer = self.layer
-        if layer is None or self.axis_combo.value is None:
-            return None
-        if self.preview_worker is not None:
-            self._preview_pending = True
-            return None
-        axis = int(self.axis_combo.value)
-        try:
-            options = dataclasses.replace(self._projection_options(layer), z_step=self.step_value())
-        except ValueError as exc:
-            self.status.value = f"preview: {exc}"
-            return None
-        data = layer_data(layer)
-        step = preview_step(tuple(data.shape))
-        lateral = [i for i in range(data.ndim) if i != axis][-2:]
-        index = tuple(slice(None, None, step) if i in lateral else slice(None) for i in range(data.ndim))
-        stack = layer_stack(layer)
-        small = dataclasses.replace(stack, data=data[index], scale=tuple(
-            s * step if i in lateral else s for i, s in enumerate(stack.scale)))
-
-        def job() -> Any:
-            return project_stack(Selection(small), options, depth_axis=axis)
-
-        worker = create_worker(job, _start_thread=False, _ignore_errors=True)
-        worker.returned.connect(lambda out: self._show_preview(layer, step, out))
-        worker.errored.connect(lambda exc: setattr(self.status, "value", f"preview: {exc}"))
-        worker.finished.connect(self._preview_done)
-        self.preview_worker = worker
-        if start_thread:
-            worker.start()
-        return worker
-
-    def _on_close(self) -> None:
-        self._preview_pending = False
-        try:
-            self._timer.stop()
-        except RuntimeError:  # the Qt timer is already gone (application shutting down)
-            pass
-
-    def _preview_done(self) -> None:
-        self.preview_worker = None
-        if self._preview_pending:
-            self._preview_pending = False
-            self._timer.start()
-
-    def _show_preview(self, layer: Any, step: int, projected: Any) -> None:
+    def _show_preview(self, layer: Any, step: int, seconds: float, projected: Any) -> None:
         name = f"{layer.name} depth colour (preview)"
         axis = projected.provenance["depth_axis"]
-        old = self.preview_layer
-        if old is not None and old in self.viewer.layers:
-            self.viewer.layers.remove(old)
         self.preview_layer = self.add_result(projected.rgb, projected.geometry.with_samples(),
-                                             source=layer, depth_axis=axis, name=name, rgb=True)
+                                             source=layer, depth_axis=axis, name=name, rgb=True,
+                                             replace=self.preview_layer)
         self._draw_legend(projected.result)
-        self.status.value = f"preview: every {step}th pixel; press Compute for the full result"
-
-    def _remove_preview(self) -> None:
-        if self.preview_layer is not None and self.preview_layer in self.viewer.layers:
-            self.viewer.layers.remove(self.preview_layer)
-        self.preview_layer = None
+        self.status.value = (f"Preview on every {step}th pixel: the full stack would take about "
+                             f"{seconds:.1f} s each time; press Compute for the full result")

@@ -8,12 +8,21 @@ and its data are never changed, and whole-stack work runs off the GUI thread.
 
 from __future__ import annotations
 
+import dataclasses
 from typing import Any
 
 import numpy as np
-from magicgui.widgets import CheckBox, ComboBox, FloatSpinBox, Label
+from magicgui.widgets import CheckBox, ComboBox, FloatSpinBox, Label, PushButton
 
-from ..jobs.choices import CMAP_KIND, COLOUR_MAPS, DEPTH_MAP_CMAPS, OCCLUSION_NOTE
+from ..jobs.choices import (
+    CMAP_KIND,
+    COLOUR_MAPS,
+    DEPTH_MAP_CMAPS,
+    OCCLUSION_NOTE,
+    PATH_CAVEAT,
+    PATH_NOTE,
+)
+from ._common import wrapped
 from ._dock import in_dock_words, layer_letters
 from ._projection_base import ProjectionDock
 from .depth_colour import DepthColourWidget
@@ -42,6 +51,15 @@ class PeakDepthWidget(ProjectionDock):
     figure_name = "peak depth"
     #: The figure blanks pixels whose peak is at or below this (as the depth layer); None: none.
     blank_at_or_below: float | None = None
+    slab_capable = True
+
+    def __init__(self, napari_viewer: Any) -> None:
+        self.max_layer: Any = None
+        self.depth_layer: Any = None
+        self.profile: Any = None
+        self._path_layer: Any = None
+        super().__init__(napari_viewer)
+        self._add_path_canvas()
 
     def _add_options(self) -> None:
         self.depth_cmap = ComboBox(label="Depth map colours", choices=list(DEPTH_MAP_CMAPS),
@@ -55,7 +73,120 @@ class PeakDepthWidget(ProjectionDock):
         self.note = Label(value="Depth is measured from the first slice (0 \u00b5m); "
                                 "ties go to the shallowest slice.")
         self.extend([self.depth_cmap, self.hide_background, self.note])
+        self.depth_cmap.changed.connect(self._on_parameter_changed)
+        self.hide_background.changed.connect(self._on_parameter_changed)
         super()._add_options()
+
+    def _add_bottom(self) -> None:
+        super()._add_bottom()
+        self.path_combo = ComboBox(label="Path", choices=self._path_choices,
+                                   tooltip="A Shapes layer: its selected (or last) path or line")
+        self.draw_path_button = PushButton(text="Draw a path\u2026",
+                                           tooltip="Adds a Shapes layer in path mode: click "
+                                                   "along a fibre, double-click to finish")
+        self.path_text = wrapped(Label(value=PATH_NOTE))
+        self.extend([self.path_combo, self.draw_path_button, self.path_text])
+        self.path_combo.changed.connect(self._on_path_layer)
+        self.draw_path_button.changed.connect(self.draw_path)
+
+    def _add_path_canvas(self) -> None:
+        from matplotlib.backends.backend_qtagg import FigureCanvasQTAgg
+        from matplotlib.figure import Figure
+
+        self.path_figure = Figure(figsize=(5.0, 3.4), dpi=90, layout="constrained")
+        self.path_canvas = FigureCanvasQTAgg(self.path_figure)
+        self.path_canvas.setMinimumHeight(260)
+        self.path_canvas.setVisible(False)
+        self.native.layout().addWidget(self.path_canvas)
+
+    # ----------------------------------------------------------- depth along a path
+    def _path_choices(self, _widget: Any = None) -> list[tuple[str, Any]]:
+        from napari.layers import Shapes
+
+        return [(layer.name, layer) for layer in self.viewer.layers if isinstance(layer, Shapes)]
+
+    def _refresh_hook(self) -> None:
+        if hasattr(self, "path_combo"):
+            self.path_combo.reset_choices()
+
+    def draw_path(self, *_: Any) -> Any:
+        """Add a Shapes layer in path-drawing mode over the result (or the stack)."""
+        layer = self.layer
+        name = f"{layer.name} path" if layer is not None else "path"
+        shapes = self.viewer.add_shapes(name=name, shape_type="path", edge_color="#ffffff",
+                                        edge_width=2.0 * float(min(layer.scale[-2:]))
+                                        if layer is not None else 1.0,
+                                        ndim=2 if self.max_layer is None else self.max_layer.ndim)
+        shapes.mode = "add_path"
+        self.path_combo.reset_choices()
+        self.path_combo.value = shapes
+        return shapes
+
+    def _on_path_layer(self, shapes: Any) -> None:
+        old = self._path_layer
+        if old is not None:
+            try:
+                old.events.data.disconnect(self._on_path_edited)
+            except (RuntimeError, TypeError, ValueError):
+                pass
+        self._path_layer = shapes
+        if shapes is not None:
+            shapes.events.data.connect(self._on_path_edited)
+            self.plot_path()
+
+    def _on_path_edited(self, *_: Any) -> None:
+        self.plot_path()
+
+    def path_vertices(self) -> np.ndarray | None:
+        """The chosen path in pixels (row, column) of the projected image, or None."""
+        shapes, result_layer = self.path_combo.value, self.max_layer
+        if shapes is None or result_layer is None or not len(shapes.data):
+            return None
+        kinds = list(shapes.shape_type)
+        chosen = [i for i in sorted(shapes.selected_data) if kinds[i] in ("path", "line")]
+        usable = chosen or [i for i, kind in enumerate(kinds) if kind in ("path", "line")]
+        if not usable:
+            return None
+        vertices = np.asarray(shapes.data[usable[-1]], dtype=float)
+        world = np.array([shapes.data_to_world(v) for v in vertices])[:, -2:]
+        scale = np.asarray(result_layer.scale[-2:], float)
+        translate = np.asarray(result_layer.translate[-2:], float)
+        return (world - translate) / scale
+
+    def plot_path(self, *_: Any) -> Any:
+        """Plot depth and peak along the chosen path; returns the profile (None when none)."""
+        from ..jobs import path_profile
+        from ..plots.path import length_text, path_figure
+
+        if self.projected is None:
+            self.path_text.value = "Compute the peak depth map first, then draw a path over it."
+            return None
+        vertices = self.path_vertices()
+        if vertices is None or len(vertices) < 2:
+            self.path_text.value = PATH_NOTE
+            return None
+        try:
+            self.profile = path_profile(self.projected, vertices,
+                                        index=self._shown_index(self.max_layer))
+        except ValueError as exc:
+            self.path_text.value = f"Path: {exc}"
+            self.path_canvas.setVisible(False)
+            return None
+        self.path_text.value = length_text(self.profile) + ". " + PATH_CAVEAT
+        path_figure(self.profile, figure=self.path_figure, title=self.path_combo.value.name)
+        self.path_canvas.setVisible(True)
+        self.path_canvas.draw_idle()
+        return self.profile
+
+    def _shown_index(self, layer: Any) -> tuple[int, ...]:
+        """The plane of a result with time or channel axes that the viewer shows now."""
+        depth = np.asarray(self.projected.result.depth_um)
+        if depth.ndim <= 2:
+            return ()
+        position = np.asarray(layer.world_to_data(self.viewer.dims.point[-layer.ndim:]))
+        position = np.delete(position, int(self.projected.provenance["depth_axis"]))
+        return tuple(int(np.clip(round(float(position[j])), 0, depth.shape[j] - 1))
+                     for j in range(depth.ndim - 2))
 
     def _projection_options(self, layer: Any) -> Any:
         from ..jobs import ProjectionOptions
@@ -69,6 +200,8 @@ class PeakDepthWidget(ProjectionDock):
         return {"clim": tuple(float(v) for v in layer.contrast_limits)}
 
     def _show(self, layer: Any, projected: Any) -> None:
+        from ._depth_layer import DepthLookup
+
         result, axis = projected.result, projected.provenance["depth_axis"]
         geometry = projected.geometry
         depth_um = np.asarray(result.depth_um)
@@ -78,21 +211,45 @@ class PeakDepthWidget(ProjectionDock):
             depth_um = np.where(np.asarray(result.peak) <= low, np.float32(np.nan), depth_um)
         z_step = projected.provenance["z_step_um"]
         deepest = max(z_step * (int(layer.data.shape[axis]) - 1), z_step)
+        lookup = DepthLookup(depth_um, np.asarray(result.peak), z_step / 2)
         self.max_layer = self.add_result(
             result.peak, geometry, source=layer, depth_axis=axis, name=f"{layer.name} peak",
             colormap=getattr(layer.colormap, "name", "gray"),
-            contrast_limits=(low, high) if high > low else None)
+            contrast_limits=(low, high) if high > low else None, replace=self.max_layer,
+            lookup=lookup)
         self.depth_layer = self.add_result(
             depth_um, geometry, source=layer, depth_axis=axis,
             name=f"{layer.name} peak depth (\u00b5m)",
             colormap=projected.provenance["depth_map_cmap"],
-            contrast_limits=(0.0, deepest),
+            contrast_limits=(0.0, deepest), replace=self.depth_layer, lookup=lookup,
             metadata={"stackdepth": {**in_dock_words(projected.provenance), "quantity":
                                      "depth of the strongest voxel", "unit": "\u00b5m",
                                      "origin": "first slice = 0 \u00b5m"}})
         self.depth_layer.colorbar.visible = True
-        self.status.value = (f"Added '{self.max_layer.name}' and '{self.depth_layer.name}' "
-                             f"(0\u2013{deepest:g} \u00b5m)")
+        slab = projected.provenance.get("slab")
+        where = "" if slab is None else (f"; slab {slab['depths_um'][0]:g}\u2013"
+                                         f"{slab['depths_um'][1]:g} \u00b5m")
+        self.status.value = (f"'{self.max_layer.name}' and '{self.depth_layer.name}' "
+                             f"(0\u2013{deepest:g} \u00b5m{where})")
+        if getattr(self, "path_combo", None) is not None and self.path_combo.value is not None:
+            self.plot_path()
+
+    def _restyled(self) -> bool:
+        """Colours of the depth map and blanked background need no new projection."""
+        layer = self.layer
+        if layer is None or self.axis_combo.value is None or self.depth_layer is None:
+            return False
+        try:
+            options = self.job_options(layer)
+        except ValueError:
+            return False
+        if self._stack_key(layer, options, int(self.axis_combo.value)) != self._shown_key \
+                or self.depth_layer not in self.viewer.layers:
+            return False
+        record = {**self.projected.provenance, "depth_map_cmap": options.cmap}
+        self.projected = dataclasses.replace(self.projected, provenance=record)
+        self._show(layer, self.projected)
+        return True
 
 
 class OcclusionWidget(ProjectionDock):

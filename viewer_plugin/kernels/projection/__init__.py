@@ -15,7 +15,9 @@
 * :func:`turn_volume`, :func:`turned_view`, :func:`turning_views`,
   :func:`series_views` -- views from angles about one axis (the stack
   resampled to cubic voxels) and top views of a series, rendered by the
-  projections above with one display range for all frames.
+  projections above with one display range for all frames;
+* :func:`slab_bounds`, :func:`offset_depths` -- the slices of a slab around
+  one slice, and a slab's projection with depths counted in the whole stack.
 
 Every projection is a chunk -> combine -> aggregate reduction over depth
 (:mod:`.reduction`), its per-pixel state folded by compiled loops
@@ -48,6 +50,7 @@ from .occlusion import DEFAULT_OPTICAL_DEPTH, VIEWS, default_density, occlusion_
 from .path import PathProfile, depth_along_path
 from .peak import PeakProjection, peak_projection
 from .reduction import combine_peak
+from .slab import offset_depths, slab_bounds, slab_depth_range
 from .turn import (
     MAX_SIDE,
     TURN_AXES,
@@ -84,8 +87,11 @@ __all__ = [
     "depth_legend",
     "display_limits",
     "occlusion_projection",
+    "offset_depths",
     "peak_projection",
     "series_views",
+    "slab_bounds",
+    "slab_depth_range",
     "turn_volume",
     "turned_view",
     "turning_views",
