@@ -37,12 +37,14 @@ def _idle(app, widget, timeout: float = 120.0) -> None:
 
 
 def _demo_fibre(voxel_um, shape) -> np.ndarray:
-    """Centre line (z, y, x in µm) of the demo's longest fibre, rebuilt from the demo's seed."""
+    """Centre line (z, y, x in µm) of a thick, bright, shallow fibre of the demo (rebuilt from the
+    demo's seed): the kind of fibre whose depth the peak depth map reads well."""
     from viewer_plugin import demo
 
     extent = np.asarray(voxel_um, float) * (np.asarray(shape) - 1)
     fibres = demo._fibres(np.random.default_rng(0), extent, 14)  # what fibre_slab(seed=0) draws
-    return max((f for f in fibres if f[1] >= 0.6), key=lambda f: len(f[0]))[0]
+    good = [f for f in fibres if f[1] >= 0.8 and f[2] >= 1.0 and f[0][:, 0].mean() < 30]
+    return max(good, key=lambda f: len(f[0]))[0]
 
 
 def main() -> int:
@@ -85,7 +87,8 @@ def main() -> int:
     inside = line[(line[:, 1] > 1) & (line[:, 1] < 75) & (line[:, 2] > 1) & (line[:, 2] < 75)]
     vertices = inside[::25, 1:] / np.asarray(slab.scale[1:])  # pixels (y, x), every ~4 µm
     shapes = viewer.add_shapes([vertices * np.asarray(slab.scale[1:])], shape_type="path",
-                               edge_color="white", edge_width=0.6, name=f"{name} path")
+                               edge_color="white", edge_width=0.6, name=f"{name} path",
+                               units=("micrometer", "micrometer"))
     peak.path_combo.reset_choices()
     peak.path_combo.value = shapes
     profile = peak.plot_path()

@@ -91,3 +91,29 @@ def test_status_bar_tells_depth_and_peak_under_the_cursor(make_napari_viewer, qt
         assert "peak 5000" in status["value"], status
     status = viewer.layers["cells peak depth (\u00b5m)"].get_status(world, world=True)
     assert "depth 14 \u00b1 1 \u00b5m \u00b7 peak 5000" in status["coordinates"]
+
+
+def test_path_over_the_peak_depth_map_is_plotted(make_napari_viewer, qtbot):
+    """A straight tube from slice 2 to slice 10 under a straight path: planar and 3-D lengths
+    against Pythagoras (the tube's axis is known), and the plot appears in the dock."""
+    from viewer_plugin.widgets.projection import PeakDepthWidget
+
+    viewer = make_napari_viewer(show=True)
+    rng = np.random.default_rng(5)
+    data = (100 + rng.poisson(5.0, (12, 40, 48))).astype(np.uint16)
+    for x in range(8, 40):  # depth rises by one slice every 4 columns along row 20
+        data[2 + (x - 8) // 4, 19:22, x] += 1500
+    _add_stack(viewer, data)  # z-step 2 um, pixels 0.5 um, translate (0, 10, -4)
+    widget = PeakDepthWidget(viewer)
+    _run(qtbot, widget)
+    shapes = widget.draw_path()
+    assert shapes.mode == "add_path" and widget.path_combo.value is shapes
+    world = np.array([[10.0 + 20 * 0.5, -4.0 + 10 * 0.5], [10.0 + 20 * 0.5, -4.0 + 37 * 0.5]])
+    shapes.add_paths([world])  # in world units: the layer shares the result's scale
+    qtbot.waitUntil(lambda: widget.profile is not None, timeout=WAIT_MS)
+    profile = widget.profile
+    planar = 27 * 0.5  # 27 pixels of 0.5 um
+    rise = (2 + (37 - 8) // 4 - (2 + (10 - 8) // 4)) * 2.0  # slices 2 -> 9, 2 um each
+    assert profile.length_2d_um == pytest.approx(planar, rel=1e-6)
+    assert profile.length_3d_um == pytest.approx(np.hypot(planar, rise), rel=0.05)
+    assert not widget.path_canvas.isHidden() and "3-D / 2-D" in widget.path_text.value

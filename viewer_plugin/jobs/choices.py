@@ -169,7 +169,9 @@ PATH_NOTE = ("Depth along a path: draw a path along a fibre over the peak depth 
              "path\u2026, or pick a Shapes layer); its depth and peak are plotted against the "
              "distance along it.")
 PATH_CAVEAT = ("Depths are those of the strongest voxel near the path: where the path leaves the "
-               "fibre, crosses another or runs over background they mean nothing.")
+               "fibre, crosses a brighter one or runs over background they mean nothing and the "
+               "3-D length comes out too long. The range covers only the rounding of depths to "
+               "slices, not such errors: check the plot for jumps.")
 SLAB_NOTE = ("Projects only the slices within half the thickness of the viewer's current slice; "
              "moving the z slider moves the slab. Colours keep the whole stack's depth range, "
              "so a colour means the same depth everywhere.")

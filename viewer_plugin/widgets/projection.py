@@ -113,7 +113,9 @@ class PeakDepthWidget(ProjectionDock):
         """Add a Shapes layer in path-drawing mode over the result (or the stack)."""
         layer = self.layer
         name = f"{layer.name} path" if layer is not None else "path"
+        units = None if self.max_layer is None else tuple(self.max_layer.units)
         shapes = self.viewer.add_shapes(name=name, shape_type="path", edge_color="#ffffff",
+                                        units=units,
                                         edge_width=2.0 * float(min(layer.scale[-2:]))
                                         if layer is not None else 1.0,
                                         ndim=2 if self.max_layer is None else self.max_layer.ndim)
