@@ -42,6 +42,28 @@ def preview_step(shape: tuple[int, ...], *, voxels: int = PREVIEW_VOXELS) -> int
     return step
 
 
+def preview_level(layer: Any, lateral: list[int], step: int) -> tuple[Any, int]:
+    """The data a preview reads and its lateral factor (1: the full-resolution data).
+
+    For a multiscale layer, the coarsest level whose y and x are downsampled
+    by a factor that divides *step* and whose other axes (depth, time) are
+    whole: reading it costs a factor² less than taking every *step*-th pixel
+    of the full resolution, which reads every chunk.
+    """
+    full = layer_data(layer)
+    best: tuple[Any, int] = (full, 1)
+    if not getattr(layer, "multiscale", False):
+        return best
+    for level in list(layer.data)[1:]:
+        shape = tuple(level.shape)
+        factor = max(1, round(full.shape[lateral[-1]] / shape[lateral[-1]]))
+        whole = all(shape[i] == full.shape[i] for i in range(full.ndim) if i not in lateral)
+        fits = all(shape[i] == -(-full.shape[i] // factor) for i in lateral)
+        if whole and fits and step % factor == 0 and factor > best[1]:
+            best = (level, factor)
+    return best
+
+
 class DepthColourWidget(ProjectionDock):
     """Colours every pixel by the depth (µm) of its signal, in one RGB image.
 
@@ -211,16 +233,22 @@ class DepthColourWidget(ProjectionDock):
         except ValueError as exc:
             self.status.value = f"preview: {exc}"
             return None
-        data = layer_data(layer)
-        step = preview_step(tuple(data.shape))
-        lateral = [i for i in range(data.ndim) if i != axis][-2:]
-        index = tuple(slice(None, None, step) if i in lateral else slice(None) for i in range(data.ndim))
+        step = preview_step(tuple(layer_data(layer).shape))
+        lateral = [i for i in range(layer.ndim) if i != axis][-2:]
+        data, factor = preview_level(layer, lateral, step)
+        index = tuple(slice(None, None, step // factor) if i in lateral else slice(None)
+                      for i in range(data.ndim))
         stack = layer_stack(layer)
         small = dataclasses.replace(stack, data=data[index], scale=tuple(
-            s * step if i in lateral else s for i, s in enumerate(stack.scale)))
+            s * step if i in lateral else s for i, s in enumerate(stack.scale)), translate=tuple(
+            t + (factor - 1) / 2 * s if i in lateral else t
+            for i, (t, s) in enumerate(zip(stack.translate, stack.scale))))
 
         def job() -> Any:
-            return project_stack(Selection(small), options, depth_axis=axis)
+            from ._runner import dask_threads
+
+            with dask_threads():
+                return project_stack(Selection(small), options, depth_axis=axis)
 
         worker = create_worker(job, _start_thread=False, _ignore_errors=True)
         worker.returned.connect(lambda out: self._show_preview(layer, step, out))
