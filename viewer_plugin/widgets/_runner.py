@@ -10,11 +10,18 @@ The kernel receives a ``progress(done, total)`` callback. Progress is
 forwarded to a napari progress bar created on the GUI thread; when the user
 cancels, the callback raises :class:`~viewer_plugin.kernels.Cancelled` at
 the kernel's next chunk boundary. Input errors become napari notifications.
+
+A job's dask work runs on as many threads as the machine has cores
+(:func:`dask_threads`): called from a worker thread, dask's threaded scheduler
+would otherwise start a pool of cores + 4 threads, which holds more blocks in
+memory at once and oversubscribes the cores.
 """
 
 from __future__ import annotations
 
+import contextlib
 import logging
+import os
 from typing import Any, Callable
 
 from napari.qt.threading import create_worker
@@ -27,6 +34,19 @@ from .._shared.progress import Cancelled
 logger = logging.getLogger(__name__)
 
 ProgressCallback = Callable[[int, int], None]
+
+
+def dask_threads() -> contextlib.AbstractContextManager[Any]:
+    """Dask's threaded scheduler with one thread per core, for work started off the main thread.
+
+    Leaves the configuration alone when the user has chosen a scheduler, a
+    pool or a number of workers (e.g. a ``dask.distributed`` client).
+    """
+    import dask
+
+    if any(dask.config.get(key, None) is not None for key in ("scheduler", "pool", "num_workers")):
+        return contextlib.nullcontext()
+    return dask.config.set(num_workers=os.cpu_count() or 1)
 
 
 class _Relay(QObject):
@@ -96,7 +116,8 @@ class BackgroundTask:
         def guarded(progress: ProgressCallback) -> Any:
             # expected stops come back as values, so `returned` always fires
             try:
-                return job(progress)
+                with dask_threads():
+                    return job(progress)
             except (Cancelled, ValueError, OSError, MemoryError) as exc:
                 return Stopped(exc)
 
