@@ -1,9 +1,8 @@
-"""The three projection docks: depth colour, peak depth map, occlusion.
+"""The three projection docks: depth colour, peak depth map (with depth along a drawn path), occlusion.
 
-They only translate between layers and :func:`viewer_plugin.jobs.project_stack`
-(and :func:`viewer_plugin.jobs.save_movie` for the turning movies of the peak
-and occlusion docks): every result is a new layer or file, the source layer
-and its data are never changed, and whole-stack work runs off the GUI thread.
+What they share (Compute, live updates, slabs, figures, movies) is
+:class:`~viewer_plugin.widgets._projection_base.ProjectionDock`; each dock here
+only adds its own options and shows its own result layers.
 """
 
 from __future__ import annotations
