@@ -87,3 +87,20 @@ def test_missing_chunk_is_one_line_naming_it(zarr_stack, tmp_path):
     chunk.unlink()
     result = run_cli("project", broken, "-o", tmp_path / "o.ome.tif", "--method", "max")
     assert_one_line_error(result, "chunk")
+
+
+def test_convert_of_a_compressed_tiff_under_a_local_cluster(tmp_path):
+    """`convert --workers 1` reads a zlib-compressed TIFF in its own process (a worker could not
+    open the file handle): the OME-Zarr equals the TIFF (tifffile reads it back)."""
+    import subprocess
+    import sys
+
+    import tifffile
+
+    data = np.random.default_rng(0).integers(0, 1000, (6, 40, 48), dtype=np.uint16)
+    tifffile.imwrite(tmp_path / "z.tif", data, compression="zlib")
+    out = tmp_path / "z.ome.zarr"
+    run = subprocess.run([sys.executable, "-m", "viewer_plugin.cli", "convert", str(tmp_path / "z.tif"),
+                          str(out), "--workers", "1"], capture_output=True, text=True, timeout=600)
+    assert run.returncode == 0, run.stderr
+    np.testing.assert_array_equal(np.asarray(read_stack(out).data), data)

@@ -340,8 +340,11 @@ def _batches(shape: tuple[int, ...], chunks: tuple[int, ...],
 
 
 def _source(data: Any, dtype: np.dtype) -> Callable[[tuple[slice, ...]], np.ndarray]:
+    """Reads one region after another in this process (the writer is sequential): with dask's
+    threads, also under a dask.distributed client, whose workers could not open a TIFF read
+    through a local file handle."""
     if is_dask(data):
-        return lambda region: np.asarray(data[region].compute(), dtype=dtype)
+        return lambda region: np.asarray(data[region].compute(scheduler="threads"), dtype=dtype)
     return lambda region: np.asarray(data[region], dtype=dtype)
 
 
