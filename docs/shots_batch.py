@@ -29,7 +29,7 @@ def main() -> int:
         subprocess.run(cli + ["figures", str(stacks), "-o", str(figs), "--same-contrast"])
         print((figs / "summary.csv").read_text())
         panels = sorted(figs.glob("*.png"))
-        figure = Figure(figsize=(4.2 * len(panels), 4.6), dpi=110, layout="constrained")
+        figure = Figure(figsize=(4.2 * len(panels), 4.0), dpi=80, layout="constrained")
         for ax, path in zip(figure.subplots(1, len(panels)), panels):
             ax.imshow(iio.imread(path))
             ax.set_title(path.name, fontsize=10)
