@@ -18,6 +18,12 @@ Conventions shared by all kernels
   is applied after the fold (:mod:`._finish`).
 * Rows are processed in parallel (``prange``); the inner loop runs over the
   contiguous last axis and is written without branches so LLVM vectorises it.
+* Helpers of the inner loops are inlined into numba's IR (``inline="always"``).
+  The body of a ``prange`` loop is compiled as a library of its own, and in
+  the process that compiles a kernel it is that library which runs: a call
+  that LLVM inlines only after linking can leave its loop scalar there (the
+  occlusion loops ran six to ten times slower until the kernel was next
+  loaded from the cache, when their ``_depth_of`` was not inlined so).
 
 The *aggregate* steps (depth, brightness and colour from the final state) are
 in :mod:`._finish`. Nothing here validates input: the public functions in the
@@ -25,6 +31,8 @@ projection modules do.
 """
 
 from __future__ import annotations
+
+import functools
 
 import numpy as np
 from llvmlite import ir
@@ -40,6 +48,7 @@ __all__ = [
     "peak_merge",
     "occlusion_update",
     "occlusion_rgb_update",
+    "opacity_polynomial",
 ]
 
 _OPTS = dict(parallel=True, cache=True, nogil=True)
@@ -420,8 +429,42 @@ _LN2_LO = np.float32(-2.12194440e-4)
 _LOG2E = np.float32(1.4426950408889634)
 
 
-#: Optical depth of one slice up to which 1 - exp(-w) is taken from its series directly.
+#: Optical depth of one slice up to which the opacity is a fitted polynomial ("thin" slices).
 SERIES_DEPTH = 0.34657359  # ln(2) / 2
+#: Optical depth of one slice up to which a cubic suffices (a quartic above): the
+#: polynomial's own error stays below 2**-24 relative (half a float32 ulp).
+CUBIC_DEPTH = 0.17
+#: Below this optical depth the Taylor polynomial is used as it is (error below 1e-10).
+_TAYLOR_DEPTH = 0.01
+
+
+@functools.lru_cache(maxsize=64)
+def opacity_polynomial(kappa: float) -> tuple[int, tuple]:
+    """(degree, coefficients) of ``1 - exp(-w) ~= w * (c0 + c1 w + ... + c_d w**d)`` on [0, kappa].
+
+    For ``kappa <= SERIES_DEPTH``: degree 3 up to ``CUBIC_DEPTH``, 4 above; the
+    coefficients interpolate ``(1 - exp(-w)) / w`` at the Chebyshev points of
+    [0, kappa] (numpy.polynomial), which keeps the error near its minimax value
+    (below 2**-24 relative), and are returned as five float32 (a zero fifth
+    for the cubic). Tiny kappa takes the Taylor coefficients.
+    """
+    kappa = float(kappa)
+    degree = 3 if kappa <= CUBIC_DEPTH else 4
+    if kappa <= _TAYLOR_DEPTH:
+        coef = np.array([1.0, -1 / 2, 1 / 6, -1 / 24, 1 / 120][:degree + 1])
+    else:
+        fit = np.polynomial.Chebyshev.interpolate(
+            lambda w: -np.expm1(-w) / w, degree, domain=[0.0, kappa])
+        coef = fit.convert(kind=np.polynomial.Polynomial, domain=[-1, 1], window=[-1, 1]).coef
+    coef = np.concatenate([coef, np.zeros(5 - len(coef))])
+    return degree, tuple(np.float32(c) for c in coef)
+
+
+def _opacity_model(kappa: float, thin: bool) -> tuple[int, tuple]:
+    """(degree, coefficients) for the compiled loops: degree 0 selects the range reduction."""
+    if thin:
+        return opacity_polynomial(kappa)
+    return 0, (np.float32(0.0),) * 5
 
 
 @njit(inline="always", fastmath=_CONTRACT)
@@ -433,18 +476,13 @@ def _expm1_series(r):
 
 
 @njit(inline="always", fastmath=_CONTRACT)
-def _absorbance(w, thin):
+def _reduced_absorbance(w):
     """``1 - exp(-w)`` in float32 for w >= 0, to about one ulp, without a branch per voxel.
 
-    *thin* (``w <= SERIES_DEPTH`` for every voxel): the series alone, written
-    for ``-expm1(-w)`` directly. Otherwise ``-w = n ln2 + r`` with ``|r| <=
-    ln2 / 2`` and ``1 - exp(-w) = (1 - 2**n) - 2**n expm1(r)``, without
-    cancellation for small w; w is clamped at 87 (exp(-87) ~ 1.6e-38: opaque).
+    ``-w = n ln2 + r`` with ``|r| <= ln2 / 2`` and ``1 - exp(-w) = (1 - 2**n)
+    - 2**n expm1(r)``, without cancellation for small w; w is clamped at 87
+    (exp(-87) ~ 1.6e-38: opaque).
     """
-    if thin:
-        return w * (np.float32(1.0) - w * (np.float32(1 / 2) - w * (np.float32(1 / 6) - w * (
-            np.float32(1 / 24) - w * (np.float32(1 / 120) - w * (
-                np.float32(1 / 720) - w * np.float32(1 / 5040)))))))
     y = -_min_ordered(w, np.float32(87.0))
     n = np.floor(y * _LOG2E + np.float32(0.5))
     r = (y - n * _LN2_HI) - n * _LN2_LO
@@ -452,64 +490,164 @@ def _absorbance(w, thin):
     return (np.float32(1.0) - s) - s * _expm1_series(r)
 
 
-@njit(inline="always")
-def _norm(lo, scale, kappa, thin):
-    """What the compositing loops need of the normalisation and the slice's optical depth.
+@njit(inline="always", fastmath=_CONTRACT)
+def _absorbance(w, p, degree):
+    """``1 - exp(-w)`` in float32 for w >= 0; *degree* is a constant where this is inlined.
 
-    ``(lo, kappa * scale)`` in float64 for floating-point input;
-    ``(kappa * scale, kappa * scale * lo)`` in float32 for 8/16-bit input;
-    kappa in float32, negative to mark *thin*.
+    *degree* 3 or 4: the polynomial *p* of :func:`opacity_polynomial`, for
+    slices no thicker than the kappa it was fitted for; 0: range reduction
+    (:func:`_reduced_absorbance`).
     """
-    ks = kappa * scale
-    k32 = np.float32(kappa)
-    return (np.float64(lo), np.float64(ks), np.float32(ks), np.float32(ks * lo),
-            -k32 if thin else k32)
+    if degree == 3:
+        return w * (p[0] + w * (p[1] + w * (p[2] + w * p[3])))
+    if degree == 4:
+        return w * (p[0] + w * (p[1] + w * (p[2] + w * (p[3] + w * p[4]))))
+    return _reduced_absorbance(w)
 
 
 def _depth_of(x, norm):
     """Optical depth ``w = kappa * clip((x - lo) * scale, 0, 1)`` of a voxel, float32; NaN -> 0."""
 
 
-@overload(_depth_of)
+@overload(_depth_of, inline="always")  # into numba's IR: see the module docstring
 def _depth_of_impl(x, norm):
     if isinstance(x, types.Integer):  # 8/16-bit values are exact in float32: one multiply-add
         def from_int(x, norm):
             w = np.float32(x) * norm[2] - norm[3]
-            return _min_ordered(_max_ordered(w, np.float32(0.0)), abs(norm[4]))
+            return _min_ordered(_max_ordered(w, np.float32(0.0)), norm[4])
         return from_int
 
-    def from_float64(x, norm):  # offset data keeps its precision
-        w = (np.float64(x) - norm[0]) * norm[1]
-        w = w if w > 0.0 else 0.0
-        return np.float32(min(w, np.float64(abs(norm[4]))))
+    def from_float64(x, norm):  # offset data keeps its precision; fmax takes NaN to 0
+        w = np.fmax((np.float64(x) - norm[0]) * norm[1], 0.0)
+        return np.float32(min(w, np.float64(norm[4])))
     return from_float64
 
 
 @njit(inline="always", fastmath=_CONTRACT)
-def _absorb(x, norm):
+def _absorb(x, norm, p, degree):
     """(opacity ``a = 1 - exp(-w)``, ``a * w``) of a voxel, float32.
 
     The emission is ``a * u = a * w / kappa``: the loops divide by kappa once
     per step, not per voxel.
     """
     w = _depth_of(x, norm)
-    a = _absorbance(w, norm[4] < np.float32(0.0))
+    a = _absorbance(w, p, degree)
     return a, a * w
 
 
-@njit(inline="always", fastmath=_CONTRACT)
-def _over4(aa, ab, ac, ad, ea, eb, ec, ed):
-    """(opacity, emission) of four slices composited front to back, in float32.
+#: Slices composited in registers before the state is updated: 8 with a polynomial
+#: opacity, 4 with the range-reduced one (LLVM would not unroll a loop of 8 of those,
+#: and the row loop would not be vectorised).
+_POLY_STEPS = 8
+_REDUCED_STEPS = 4
 
-    ``A = 1 - prod(1 - a_i)`` and ``E = sum_i e_i prod_{j<i} (1 - a_j)`` in
-    Horner form: both stay accurate to a few ulp relative however small
-    they are, so ``T * (1 - A)`` in float64 loses nothing that accumulates.
+
+@njit(inline="always", fastmath=_CONTRACT)
+def _composite(block, z, dz, r, c, m, norm, p, degree):
+    """(opacity, emission) of voxel (r, c) of the *m* slices z, z - dz, ... composited, float32.
+
+    *z* is the slice composited last (the back), *dz* +1 from the top, -1
+    from the bottom. ``A = 1 - prod(1 - a_i)`` and ``E = sum_i e_i prod_{j<i}
+    (1 - a_j)`` in Horner form, from the back: both stay accurate to a few
+    ulp relative however small they are, so ``T * (1 - A)`` in float64 loses
+    nothing that accumulates. *m* is a constant, so the loop unrolls.
     """
     one = np.float32(1.0)
-    ka = one - aa
-    kb = one - ab
-    kc = one - ac
-    return aa + ka * (ab + kb * (ac + kc * ad)), ea + ka * (eb + kb * (ec + kc * ed))
+    big_a, big_e = _absorb(block[z, r, c], norm, p, degree)
+    for i in range(1, m):
+        a, e = _absorb(block[z - i * dz, r, c], norm, p, degree)
+        k = one - a
+        big_a = a + k * big_a
+        big_e = e + k * big_e
+    return big_a, big_e
+
+
+@njit(inline="always", fastmath=_CONTRACT)
+def _composite_rgb(block, z, dz, r, c, m, norm, p, degree, q):
+    """As :func:`_composite`, step s (0 = front) emitting in colour ``q[3 s : 3 s + 3]``.
+
+    Returns (opacity, red, green, blue emission).
+    """
+    one = np.float32(1.0)
+    j = 3 * (m - 1)
+    big_a, e = _absorb(block[z, r, c], norm, p, degree)
+    e0, e1, e2 = e * q[j], e * q[j + 1], e * q[j + 2]
+    for i in range(1, m):
+        a, e = _absorb(block[z - i * dz, r, c], norm, p, degree)
+        j = 3 * (m - 1 - i)
+        k = one - a
+        big_a = a + k * big_a
+        e0 = e * q[j] + k * e0
+        e1 = e * q[j + 1] + k * e1
+        e2 = e * q[j + 2] + k * e2
+    return big_a, e0, e1, e2
+
+
+@njit(inline="always", fastmath=_CONTRACT)
+def _grey_row(block, z, dz, r, norm, p, degree, a_out, e_out):
+    """Opacity and emission of row *r* of a group of slices composited, into a_out, e_out.
+
+    The group is :func:`_group`'s slices; one loop per opacity form (a
+    test inside would leave the vector loop), each pure float32 so that it
+    vectorises at full width.
+    """
+    if degree == 3:
+        for c in range(a_out.shape[0]):
+            a_out[c], e_out[c] = _composite(block, z, dz, r, c, _POLY_STEPS, norm, p, 3)
+    elif degree == 4:
+        for c in range(a_out.shape[0]):
+            a_out[c], e_out[c] = _composite(block, z, dz, r, c, _POLY_STEPS, norm, p, 4)
+    else:
+        for c in range(a_out.shape[0]):
+            a_out[c], e_out[c] = _composite(block, z, dz, r, c, _REDUCED_STEPS, norm, p, 0)
+
+
+@njit(inline="always", fastmath=_CONTRACT)
+def _grey_slice_row(block, z, r, norm, p, degree, a_out, e_out):
+    """As :func:`_grey_row` for one slice (the last slices of a block)."""
+    if degree == 3:
+        for c in range(a_out.shape[0]):
+            a_out[c], e_out[c] = _absorb(block[z, r, c], norm, p, 3)
+    elif degree == 4:
+        for c in range(a_out.shape[0]):
+            a_out[c], e_out[c] = _absorb(block[z, r, c], norm, p, 4)
+    else:
+        for c in range(a_out.shape[0]):
+            a_out[c], e_out[c] = _absorb(block[z, r, c], norm, p, 0)
+
+
+@njit(inline="always", fastmath=_CONTRACT)
+def _rgb_row(block, z, dz, r, norm, p, degree, q, a_out, e_out):
+    """As :func:`_grey_row` with colours *q* (:func:`_composite_rgb`), into a_out and e_out (3, cols)."""
+    if degree == 3:
+        for c in range(a_out.shape[0]):
+            a_out[c], e_out[0, c], e_out[1, c], e_out[2, c] = _composite_rgb(
+                block, z, dz, r, c, _POLY_STEPS, norm, p, 3, q)
+    elif degree == 4:
+        for c in range(a_out.shape[0]):
+            a_out[c], e_out[0, c], e_out[1, c], e_out[2, c] = _composite_rgb(
+                block, z, dz, r, c, _POLY_STEPS, norm, p, 4, q)
+    else:
+        for c in range(a_out.shape[0]):
+            a_out[c], e_out[0, c], e_out[1, c], e_out[2, c] = _composite_rgb(
+                block, z, dz, r, c, _REDUCED_STEPS, norm, p, 0, q)
+
+
+@njit(inline="always", fastmath=_CONTRACT)
+def _rgb_slice_row(block, z, r, norm, p, degree, q, a_out, e_out):
+    """As :func:`_rgb_row` for one slice of colour ``q[:3]``."""
+    if degree == 3:
+        for c in range(a_out.shape[0]):
+            a_out[c], e_out[0, c], e_out[1, c], e_out[2, c] = _composite_rgb(
+                block, z, 0, r, c, 1, norm, p, 3, q)
+    elif degree == 4:
+        for c in range(a_out.shape[0]):
+            a_out[c], e_out[0, c], e_out[1, c], e_out[2, c] = _composite_rgb(
+                block, z, 0, r, c, 1, norm, p, 4, q)
+    else:
+        for c in range(a_out.shape[0]):
+            a_out[c], e_out[0, c], e_out[1, c], e_out[2, c] = _composite_rgb(
+                block, z, 0, r, c, 1, norm, p, 0, q)
 
 
 @njit(inline="always")
@@ -519,152 +657,132 @@ def _step_slice(nz, k, reverse):
 
 
 @njit(inline="always")
-def _four_steps(block, k, r, reverse):
-    """Row *r* of the slices of steps k .. k+3, in the order they are composited."""
-    if reverse:
-        z = block.shape[0] - 1 - k
-        return block[z, r], block[z - 1, r], block[z - 2, r], block[z - 3, r]
-    return _four_rows(block, k, r)
-
-
-@njit(inline="always", fastmath=_CONTRACT)
-def _absorb4(rows4, c, norm):
-    """Opacities and emissions (:func:`_absorb`) of column *c* of four rows."""
-    ra, rb, rc, rd = rows4
-    aa, ea = _absorb(ra[c], norm)
-    ab, eb = _absorb(rb[c], norm)
-    ac, ec = _absorb(rc[c], norm)
-    ad, ed = _absorb(rd[c], norm)
-    return aa, ab, ac, ad, ea, eb, ec, ed
-
-
-@njit(inline="always", fastmath=_CONTRACT)
-def _grey4(rows4, norm, a4, e4):
-    """Opacity and emission of four rows of slices composited (:func:`_over4`), into a4, e4.
-
-    Pure float32, apart from the float64 state, so that it vectorises at full
-    width; one loop per case of *thin* (the test would leave the vector loop).
-    """
-    if norm[4] < np.float32(0.0):
-        for c in range(a4.shape[0]):
-            aa, ab, ac, ad, ea, eb, ec, ed = _absorb4(rows4, c, norm)
-            a4[c], e4[c] = _over4(aa, ab, ac, ad, ea, eb, ec, ed)
-        return
-    for c in range(a4.shape[0]):
-        aa, ab, ac, ad, ea, eb, ec, ed = _absorb4(rows4, c, norm)
-        a4[c], e4[c] = _over4(aa, ab, ac, ad, ea, eb, ec, ed)
-
-
-@njit(inline="always", fastmath=_CONTRACT)
-def _rgb4(rows4, norm, q, a4, e3):
-    """As :func:`_grey4`, each slice's emission times its colour (q: 4 x 3 float32), into e3 (3, cols)."""
-    if norm[4] < np.float32(0.0):
-        for c in range(a4.shape[0]):
-            _rgb_column(_absorb4(rows4, c, norm), q, a4, e3, c)
-        return
-    for c in range(a4.shape[0]):
-        _rgb_column(_absorb4(rows4, c, norm), q, a4, e3, c)
-
-
-@njit(inline="always", fastmath=_CONTRACT)
-def _rgb_column(ae, q, a4, e3, c):
-    """Column *c* of :func:`_rgb4` from the opacities and emissions *ae* of its four voxels."""
-    aa, ab, ac, ad, ea, eb, ec, ed = ae
-    a4[c], e3[0, c] = _over4(aa, ab, ac, ad, ea * q[0], eb * q[3], ec * q[6], ed * q[9])
-    e3[1, c] = _over4(aa, ab, ac, ad, ea * q[1], eb * q[4], ec * q[7], ed * q[10])[1]
-    e3[2, c] = _over4(aa, ab, ac, ad, ea * q[2], eb * q[5], ec * q[8], ed * q[11])[1]
-
-
-@njit(inline="always", fastmath=_CONTRACT)
-def _one_step(row, norm, a4, e4):
-    """Opacity and emission of one row of a slice (the last slices of a block), into a4, e4."""
-    for c in range(a4.shape[0]):
-        a4[c], e4[c] = _absorb(row[c], norm)
-
-
-@njit(fastmath=_CONTRACT, **_OPTS)
-def occlusion_update(block, lo, scale, kappa, thin, reverse, colour, trans):
-    """Front-to-back compositing of *block* into (float32 colour, float64 transmittance).
-
-    Each voxel has optical depth ``w = kappa * u``, ``u = clip((x - lo) *
-    scale, 0, 1)``, opacity ``a = 1 - exp(-w)`` (:func:`_absorbance`; *thin*
-    when ``kappa <= SERIES_DEPTH``) and emits ``a * u``. Four slices at a
-    time are composited in float32 (:func:`_over4`, vectorised), then added
-    to the state: ``C += T * E`` (one float32 rounding per four slices) and
-    ``T -= T * A`` in float64. *reverse* composites from the last slice of
-    the block to the first. Threads take bands of ``_BAND`` rows, as
-    :func:`peak_update`.
-    """
-    nz, nr, nc = block.shape
-    norm = _norm(lo, scale, kappa, thin)
-    per_kappa = 1.0 / kappa if kappa > 0.0 else 0.0
-    for b in prange(_n_bands(nr)):
-        a4 = np.empty(nc, np.float32)
-        e4 = np.empty(nc, np.float32)
-        k = 0
-        while k < nz:
-            step = 4 if k + 4 <= nz else 1
-            for r in _band(b, nr):
-                if step == 4:
-                    _grey4(_four_steps(block, k, r, reverse), norm, a4, e4)
-                else:
-                    _one_step(block[_step_slice(nz, k, reverse), r], norm, a4, e4)
-                col = colour[r]
-                tr = trans[r]
-                for c in range(nc):
-                    t = tr[c]
-                    col[c] = np.float32(np.float64(col[c]) + t * np.float64(e4[c]) * per_kappa)
-                    tr[c] = t - t * np.float64(a4[c])
-            k += step
+def _group(nz, k, reverse, degree):
+    """(slices composited together from step *k*: a group of 8 (polynomial opacity)
+    or 4 (range-reduced), or 1 near the end of the block; the slice of the last of
+    them; the direction towards the front)."""
+    steps = _POLY_STEPS if degree else _REDUCED_STEPS
+    m = steps if k + steps <= nz else 1
+    return m, _step_slice(nz, k + m - 1, reverse), -1 if reverse else 1
 
 
 @njit(inline="always")
-def _step_colours(colours, z0, nz, k, reverse):
-    """The float32 colours of the slices of steps k .. k+3, flat (slice-major), 12 values."""
-    return (_rgb32(colours, z0 + _step_slice(nz, k, reverse))
-            + _rgb32(colours, z0 + _step_slice(nz, k + 1, reverse))
-            + _rgb32(colours, z0 + _step_slice(nz, k + 2, reverse))
-            + _rgb32(colours, z0 + _step_slice(nz, k + 3, reverse)))
+def _add_grey(col, tr, a, e, per_kappa):
+    """State after the composited slices: ``C += T * E / kappa`` (float32), ``T -= T * A`` (float64)."""
+    for c in range(a.shape[0]):
+        t = tr[c]
+        col[c] += np.float32(t) * (e[c] * per_kappa)
+        tr[c] = t - t * np.float64(a[c])
 
 
 @njit(fastmath=_CONTRACT, **_OPTS)
+def _occlusion_grey(block, norm, p, degree, reverse, per_kappa, colour, trans):
+    """The loops of :func:`occlusion_update`."""
+    nz, nr, nc = block.shape
+    for b in prange(_n_bands(nr)):
+        a_g = np.empty(nc, np.float32)
+        e_g = np.empty(nc, np.float32)
+        k = 0
+        while k < nz:
+            m, z, dz = _group(nz, k, reverse, degree)
+            for r in _band(b, nr):
+                if m > 1:
+                    _grey_row(block, z, dz, r, norm, p, degree, a_g, e_g)
+                else:
+                    _grey_slice_row(block, z, r, norm, p, degree, a_g, e_g)
+                _add_grey(colour[r], trans[r], a_g, e_g, per_kappa)
+            k += m
+
+
+def _norm_of(lo, scale, kappa):
+    """What the compositing loops need of the normalisation and the slice's optical depth.
+
+    ``(lo, kappa * scale)`` in float64 for floating-point input;
+    ``(kappa * scale, kappa * scale * lo)`` in float32 for 8/16-bit input;
+    kappa in float32.
+    """
+    ks = float(kappa) * float(scale)
+    return (np.float64(lo), np.float64(ks), np.float32(ks), np.float32(ks * float(lo)),
+            np.float32(kappa))
+
+
+def occlusion_update(block, lo, scale, kappa, thin, reverse, colour, trans):
+    """Front-to-back compositing of *block* into (colour, float64 transmittance).
+
+    Each voxel has optical depth ``w = kappa * u``, ``u = clip((x - lo) *
+    scale, 0, 1)``, opacity ``a = 1 - exp(-w)`` and emits ``a * u``. *thin*
+    (``kappa <= SERIES_DEPTH``): the opacity is the polynomial of
+    :func:`opacity_polynomial` (a cubic or a quartic: no table, no branch);
+    otherwise it is range-reduced (:func:`_reduced_absorbance`). Eight
+    slices at a time are composited in float32 (:func:`_composite`,
+    vectorised; one at a time at the end of the block), then added to the
+    state: ``C += T * E / kappa`` in float32 (one rounding per eight slices)
+    and ``T -= T * A`` in float64. *reverse* composites from the last slice of
+    the block to the first. Threads take bands of ``_BAND`` rows, as
+    :func:`peak_update`. A Python function: it picks the opacity polynomial,
+    then runs the compiled loops.
+    """
+    degree, p = _opacity_model(kappa, thin)
+    per_kappa = np.float32(1.0 / kappa if kappa > 0.0 else 0.0)
+    _occlusion_grey(block, _norm_of(lo, scale, kappa), p, degree, bool(reverse), per_kappa,
+                    colour, trans)
+
+
+@njit(inline="always")
+def _colours(colours, z0, nz, k, reverse):
+    """The float32 colour of the slice of step *k*: three values."""
+    return _rgb32(colours, z0 + _step_slice(nz, k, reverse))
+
+
+@njit(inline="always")
+def _colours4(colours, z0, nz, k, reverse):
+    """The float32 colours of the slices of steps k .. k+3, flat (step-major), 12 values."""
+    return (_colours(colours, z0, nz, k, reverse) + _colours(colours, z0, nz, k + 1, reverse)
+            + _colours(colours, z0, nz, k + 2, reverse) + _colours(colours, z0, nz, k + 3, reverse))
+
+
+@njit(inline="always")
+def _add_rgb(k0, k1, k2, tr, a, e3):
+    """RGB state after the composited slices: ``C += T * E`` per channel (float32), ``T -= T * A``."""
+    for c in range(a.shape[0]):
+        t = tr[c]
+        t32 = np.float32(t)
+        k0[c] += t32 * e3[0, c]
+        k1[c] += t32 * e3[1, c]
+        k2[c] += t32 * e3[2, c]
+        tr[c] = t - t * np.float64(a[c])
+
+
+@njit(fastmath=_CONTRACT, **_OPTS)
+def _occlusion_rgb(block, z0, norm, p, degree, reverse, colours, colour, trans):
+    """The loops of :func:`occlusion_rgb_update`."""
+    nz, nr, nc = block.shape
+    for b in prange(_n_bands(nr)):
+        a_g = np.empty(nc, np.float32)
+        e3 = np.empty((3, nc), np.float32)
+        k = 0
+        while k < nz:
+            m, z, dz = _group(nz, k, reverse, degree)
+            if m > 1:  # colours of the group's steps (a group of 4 reads the first 12)
+                q = (_colours4(colours, z0, nz, k, reverse)
+                     + _colours4(colours, z0, nz, k + 4 if m == _POLY_STEPS else k, reverse))
+                for r in _band(b, nr):
+                    _rgb_row(block, z, dz, r, norm, p, degree, q, a_g, e3)
+                    _add_rgb(colour[0, r], colour[1, r], colour[2, r], trans[r], a_g, e3)
+            else:
+                q1 = _colours(colours, z0, nz, k, reverse)
+                for r in _band(b, nr):
+                    _rgb_slice_row(block, z, r, norm, p, degree, q1, a_g, e3)
+                    _add_rgb(colour[0, r], colour[1, r], colour[2, r], trans[r], a_g, e3)
+            k += m
+
+
 def occlusion_rgb_update(block, z0, lo, scale, kappa, thin, reverse, colours, colour, trans):
     """As :func:`occlusion_update`, slice z emitting ``a * u * colours[z0 + z]``.
 
     ``colour`` is planar float32 (3, rows, cols); the transmittance float64.
     *colours* are the slice colours divided by kappa (0 where kappa is 0).
     """
-    nz, nr, nc = block.shape
-    norm = _norm(lo, scale, kappa, thin)
-    for b in prange(_n_bands(nr)):
-        a4 = np.empty(nc, np.float32)
-        e3 = np.empty((3, nc), np.float32)
-        k = 0
-        while k < nz:
-            step = 4 if k + 4 <= nz else 1
-            if step == 4:
-                q = _step_colours(colours, z0, nz, k, reverse)
-            else:  # one slice: its colour four times, the first used
-                q3 = _rgb32(colours, z0 + _step_slice(nz, k, reverse))
-                q = q3 + q3 + q3 + q3
-            for r in _band(b, nr):
-                if step == 4:
-                    _rgb4(_four_steps(block, k, r, reverse), norm, q, a4, e3)
-                else:
-                    _one_step(block[_step_slice(nz, k, reverse), r], norm, a4, e3[1])
-                    for c in range(nc):
-                        e3[0, c] = e3[1, c] * q[0]
-                        e3[2, c] = e3[1, c] * q[2]
-                        e3[1, c] *= q[1]
-                k0 = colour[0, r]
-                k1 = colour[1, r]
-                k2 = colour[2, r]
-                tr = trans[r]
-                for c in range(nc):
-                    t = tr[c]
-                    t32 = np.float32(t)
-                    k0[c] += t32 * e3[0, c]
-                    k1[c] += t32 * e3[1, c]
-                    k2[c] += t32 * e3[2, c]
-                    tr[c] = t - t * np.float64(a4[c])
-            k += step
+    degree, p = _opacity_model(kappa, thin)
+    _occlusion_rgb(block, z0, _norm_of(lo, scale, kappa), p, degree, bool(reverse), colours,
+                   colour, trans)
