@@ -21,3 +21,21 @@ def wait(app, worker, widget, timeout: float = 300.0) -> None:
         app.processEvents()
         time.sleep(0.02)
     settle(app)
+
+
+def demo_viewer(width: int = 1500, height: int = 1000):
+    """(viewer, app, demo stack, source layer): the demo fibre slab in a new napari window, with
+    the projection kernels compiled first."""
+    import napari
+    from qtpy.QtWidgets import QApplication
+
+    from viewer_plugin import demo
+    from viewer_plugin.kernels.projection import warm_up
+    from viewer_plugin.samples import demo_layer
+
+    warm_up()
+    viewer = napari.Viewer(show=True)
+    viewer.window.resize(width, height)
+    slab = demo.fibre_slab()
+    data, kwargs, _ = demo_layer(slab)
+    return viewer, QApplication.instance(), slab, viewer.add_image(data, **kwargs)

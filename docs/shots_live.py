@@ -20,7 +20,7 @@ import numpy as np
 
 os.environ.setdefault("NAPARI_CONFIG", os.path.join(tempfile.mkdtemp(), "settings.yaml"))
 
-from _shots_common import settle, wait  # noqa: E402  (docs/ is on sys.path for these scripts)
+from _shots_common import demo_viewer, settle, wait  # noqa: E402  (docs/ is on sys.path for these scripts)
 
 IMAGES = Path(__file__).resolve().parent / "images"
 
@@ -48,22 +48,11 @@ def _demo_fibre(voxel_um, shape) -> np.ndarray:
 
 
 def main() -> int:
-    import napari
-    from qtpy.QtWidgets import QApplication
 
-    from viewer_plugin import demo
-    from viewer_plugin.kernels.projection import warm_up
-    from viewer_plugin.samples import demo_layer
     from viewer_plugin.widgets.projection import DepthColourWidget, PeakDepthWidget
 
     IMAGES.mkdir(exist_ok=True)
-    warm_up()
-    viewer = napari.Viewer(show=True)
-    viewer.window.resize(1600, 1000)
-    app = QApplication.instance()
-    slab = demo.fibre_slab()
-    data, kwargs, _ = demo_layer(slab)
-    source = viewer.add_image(data, **kwargs)
+    viewer, app, slab, source = demo_viewer(1600)
     name = source.name
 
     colour = DepthColourWidget(viewer)

@@ -19,7 +19,7 @@ from pathlib import Path
 
 os.environ.setdefault("NAPARI_CONFIG", os.path.join(tempfile.mkdtemp(), "settings.yaml"))
 
-from _shots_common import settle, wait  # noqa: E402  (docs/ is on sys.path for these scripts)
+from _shots_common import demo_viewer, settle, wait  # noqa: E402  (docs/ is on sys.path for these scripts)
 
 IMAGES = Path(__file__).resolve().parent / "images"
 
@@ -39,12 +39,8 @@ def dock(viewer, widget, name: str) -> None:
 
 
 def main() -> int:
-    import napari
-    from qtpy.QtWidgets import QApplication
 
-    from viewer_plugin import demo
-    from viewer_plugin.kernels.projection import DEFAULT_CMAP, warm_up
-    from viewer_plugin.samples import demo_layer
+    from viewer_plugin.kernels.projection import DEFAULT_CMAP
     from viewer_plugin.widgets.projection import (
         DepthColourWidget,
         OcclusionWidget,
@@ -52,13 +48,7 @@ def main() -> int:
     )
 
     IMAGES.mkdir(exist_ok=True)
-    warm_up()
-    viewer = napari.Viewer(show=True)
-    viewer.window.resize(1500, 1000)
-    app = QApplication.instance()
-    slab = demo.fibre_slab()
-    data, kwargs, _ = demo_layer(slab)
-    source = viewer.add_image(data, **kwargs)
+    viewer, app, slab, source = demo_viewer(1500)
     name = source.name
 
     colour = DepthColourWidget(viewer)
