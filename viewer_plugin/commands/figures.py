@@ -16,9 +16,8 @@ from pathlib import Path
 from typing import Any
 
 from ..jobs.choices import (
-    CMAP_HELP,
+    PROJECTION_CMAP_HELP,
     DEFAULT_METHOD,
-    DEPTH_MAP_CMAPS,
     METHOD_LABELS,
     PROJECTION_METHODS,
     VIEWS,
@@ -56,9 +55,7 @@ def register(sub: Any) -> None:
                              "with a colour bar in um; occlusion is a rendering for showing, not "
                              "a measurement")
     parser.add_argument("--cmap", default=None, metavar="NAME",
-                        help=f"{CMAP_HELP}. With occlusion: colour each slice by its depth "
-                             f"(default grey). With max: the colours of the depth map (default "
-                             f"{DEPTH_MAP_CMAPS[0]})")
+                        help=PROJECTION_CMAP_HELP)
     parser.add_argument("--depth-range", nargs=2, type=float, metavar=("A", "B"),
                         help="depths in um at the two ends of the colour map (default: the widest "
                              "stack, for every figure); not with occlusion")

@@ -16,10 +16,9 @@ from pathlib import Path
 from typing import Any
 
 from ..jobs.choices import (
-    CMAP_HELP,
+    PROJECTION_CMAP_HELP,
     DEFAULT_METHOD,
     DEPTH_CODED,
-    DEPTH_MAP_CMAPS,
     PROJECTION_METHODS,
     VIEWS,
 )
@@ -50,9 +49,7 @@ def register(sub: Any) -> None:
     parser.add_argument("--method", default=DEFAULT_METHOD, choices=PROJECTION_METHODS,
                         help=f"projection (default: {DEFAULT_METHOD})")
     parser.add_argument("--cmap", default=None, metavar="NAME",
-                        help=f"{CMAP_HELP}. With occlusion: colour each slice by its depth "
-                             f"(default grey). With max and --figure: the colours of the depth map "
-                             f"(default {DEPTH_MAP_CMAPS[0]})")
+                        help=PROJECTION_CMAP_HELP)
     parser.add_argument("--depth-range", nargs=2, type=float, metavar=("D0", "D1"),
                         help="depths in um at the two ends of the colour map (default: whole "
                              "stack); with max, of the figure's depth map")

@@ -52,6 +52,7 @@ __all__ = [
     "PATH_CAVEAT",
     "PATH_NOTE",
     "PROJECTION_CAVEAT",
+    "PROJECTION_CMAP_HELP",
     "PROJECTION_METHODS",
     "RECOLOURABLE",
     "RESCALE",
@@ -172,6 +173,9 @@ PATH_CAVEAT = ("Depths are those of the strongest voxel near the path: where the
                "fibre, crosses a brighter one or runs over background they mean nothing and the "
                "3-D length comes out too long. The range covers only the rounding of depths to "
                "slices, not such errors: check the plot for jumps.")
+#: Help of --cmap for every projection method (``stackdepth project`` and ``stackdepth figures``).
+PROJECTION_CMAP_HELP = (f"{CMAP_HELP}. With occlusion: colour each slice by its depth (default grey). "
+                        f"With max: the colours of the depth map (default {DEPTH_MAP_CMAPS[0]})")
 SLAB_NOTE = ("Projects only the slices within half the thickness of the viewer's current slice; "
              "moving the z slider moves the slab. Colours keep the whole stack's depth range, "
              "so a colour means the same depth everywhere.")
